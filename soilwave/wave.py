@@ -9,9 +9,10 @@ Layer-1 physics kernels (pure numpy, vectorised, broadcasting). Units throughout
 
 The medium is a homogeneous, isotropic, non-magnetic (mu = mu_0) conductive
 dielectric with a frequency-independent real permittivity and conductivity.
-For a plane wave ``exp(i(omega t - k z))`` with complex wavenumber
-``k = beta - i alpha`` the exact solution is (standard electromagnetic theory,
-e.g. any textbook treatment of waves in lossy media)::
+For a plane wave ``exp(i(k z - omega t))`` with complex wavenumber
+``k = beta + i alpha`` (amplitude decays as ``exp(-alpha z)``) the exact
+solution is (standard electromagnetic theory, e.g. any textbook treatment of
+waves in lossy media)::
 
     p     = sigma / (omega eps_0 eps)                         (loss tangent)
     alpha = omega sqrt(mu eps_0 eps / 2) [sqrt(1 + p^2) - 1]^(1/2)   Np/m

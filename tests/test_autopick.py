@@ -1,0 +1,302 @@
+"""Tests of soilwave.autopick: first breaks, reflection tracking, pick uncertainty.
+
+Gathers are built here with their own formulas (Ricker wavelets at travel
+times x/c, x/v and sqrt(t0^2 + x^2/v^2)), independent of soilwave.synthetic.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import constants
+
+import soilwave as sw
+from soilwave.autopick import _pick_sigma
+from soilwave.errors import InputError
+from soilwave.gather import gather_from_array
+
+C = constants.c * 1e-9  # m/ns, CODATA
+F = 200.0  # MHz
+T = 1000.0 / F  # ns
+
+
+def ricker(t, f_mhz=F):
+    u = (np.pi * f_mhz * 1e-3 * t) ** 2
+    return (1.0 - 2.0 * u) * np.exp(-u)
+
+
+def gather(
+    x, *, v1=0.1, reflections=(), dt=0.1, n=900, noise=0.0, seed=0, t_first=0.0, air=1.0, ground=0.8
+):
+    """Air wave, ground wave and hyperbolic reflections (t0, v_rms, amplitude)."""
+    t = t_first + np.arange(n) * dt
+    tt = t[None, :]
+    xx = x[:, None]
+    data = air * ricker(tt - xx / C) + ground * ricker(tt - xx / v1)
+    for t0, v, amp in reflections:
+        data = data + amp * ricker(tt - np.sqrt(t0**2 + (xx / v) ** 2))
+    data = data + noise * np.random.default_rng(seed).standard_normal(data.shape)
+    return gather_from_array(data, offsets=x, dt_ns=dt, frequency_mhz=F, t0_ns=t_first)
+
+
+X = np.round(np.arange(0.5, 4.001, 0.1), 6)
+
+
+def _phase(p, phase, interface=None):
+    sel = p.phase.values == phase
+    if interface is not None:
+        sel &= p.interface.values == interface
+    return p.offset.values[sel], p.time.values[sel], p.sigma.values[sel]
+
+
+# --- first breaks ---------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("method", ["energy_ratio", "sta_lta"])
+@pytest.mark.parametrize("v1", [0.1, 0.06])
+def test_first_breaks_within_half_a_sample_on_clean_data(method, v1):
+    dt = 0.1
+    g = gather(X, v1=v1, dt=dt)
+    p = sw.first_breaks(g, method=method)
+    xa, ta, _ = _phase(p, "air")
+    xg, tg, _ = _phase(p, "ground")
+    assert np.all(np.abs(ta - xa / C) < dt / 2)
+    assert np.all(np.abs(tg - xg / v1) < dt / 2)
+    # picks are left out only where the two arrivals are within one period
+    separated = X * (1 / v1 - 1 / C) >= T * 1.0001
+    assert set(xg.tolist()) == set(X[separated].tolist())
+    assert set(xa.tolist()) == set(X[separated].tolist())
+    assert p.attrs["ground_velocity"] == pytest.approx(v1, rel=1e-3)
+
+
+def test_first_breaks_recover_time_zero_shift():
+    # The record starts 4 ns before the transmitter fires (time zero unknown to
+    # the picker): the air wave is held to x/c and its intercept removed.
+    dt = 0.1
+    g = gather(X, dt=dt)
+    shifted = g.assign_coords(time=g["time"].values + 4.0)
+    p = sw.first_breaks(shifted)
+    assert p.attrs["time_shift_ns"] == pytest.approx(4.0, abs=dt / 2)
+    xa, ta, _ = _phase(p, "air")
+    assert np.all(np.abs(ta - xa / C) < dt / 2)
+    q = sw.first_breaks(shifted, align_air=False)
+    xa, ta, _ = _phase(q, "air")
+    assert np.all(np.abs(ta - xa / C - 4.0) < dt / 2)
+
+
+def test_first_breaks_in_noise_hold_linear_moveout():
+    # With noise the picks scatter but stay within a quarter period of the lines
+    # (the moveout gate), and the fitted ground velocity is within 1 %.
+    g = gather(X, noise=0.05, seed=3)
+    p = sw.first_breaks(g)
+    xg, tg, sg = _phase(p, "ground")
+    assert xg.size >= 20
+    assert np.all(np.abs(tg - xg / 0.1) < T / 4)
+    assert p.attrs["ground_velocity"] == pytest.approx(0.1, rel=0.01)
+    assert np.all(sg >= T / 10 - 1e-12)
+
+
+def test_no_air_wave_is_an_error():
+    rng = np.random.default_rng(1)
+    g = gather_from_array(
+        rng.standard_normal((20, 500)), offsets=np.linspace(0.5, 4, 20), dt_ns=0.1, frequency_mhz=F
+    )
+    with pytest.raises(InputError, match="no air wave"):
+        sw.first_breaks(g)
+    with pytest.raises(InputError, match="no air wave"):
+        sw.auto_pick(g)
+
+
+# --- pick uncertainty -------------------------------------------------------------------
+
+
+def test_pick_sigma_formula():
+    # sigma = max(T / (2 pi A / sigma_n), T / 10) (common practice; derived values)
+    got = _pick_sigma(np.array([0.05, 0.2, 10.0]), 0.1, 5.0)
+    assert got[0] == pytest.approx(5.0 * 0.1 / (2 * np.pi * 0.05))  # 1.5915 ns
+    assert got[1] == pytest.approx(0.5)  # floored: 0.398 < T/10
+    assert got[2] == pytest.approx(0.5)
+
+
+# --- reflections --------------------------------------------------------------------------
+
+
+def test_auto_pick_one_reflection():
+    noise = 0.03
+    g = gather(X, reflections=[(20.0, 0.1, -0.4)], noise=noise, seed=5)
+    p = sw.auto_pick(g)
+    assert set(p.phase.values.tolist()) == {"air", "ground", "reflection"}
+    xr_, tr_, sr_ = _phase(p, "reflection", 1)
+    truth = np.sqrt(20.0**2 + (xr_ / 0.1) ** 2)
+    assert xr_.size >= 25
+    # every pick within 2 sigma + 0.1 ns of the true time, bias below 0.15 ns
+    assert np.all(np.abs(tr_ - truth) < 2 * sr_ + 0.1)
+    assert abs(np.mean(tr_ - truth)) < 0.15
+    # envelope amplitude of a Ricker of amplitude 0.4 is about 0.4 at its centre
+    amp = p.amplitude.values[p.phase.values == "reflection"]
+    assert np.median(amp) == pytest.approx(0.4, rel=0.15)
+    # noise level from the pre-arrival window: within 20 % of the true 0.03
+    assert np.all(np.isclose(p.amplitude_sigma.values, noise, rtol=0.2))
+    assert p.attrs["reflection_v_rms"][0] == pytest.approx(0.1, rel=0.03)
+
+
+def test_auto_pick_two_reflections_stop_before_merging():
+    merge = 0.75
+    refl = [(16.0, 0.11, -0.5), (34.0, 0.09, -0.35)]
+    g = gather(X, v1=0.11, reflections=refl, noise=0.02, seed=7)
+    p = sw.auto_pick(g, merge_fraction=merge)
+    assert sorted(set(p.interface.values[p.phase.values == "reflection"].tolist())) == [1, 2]
+    for k, (t0, v, _) in enumerate(refl, start=1):
+        xr_, tr_, sr_ = _phase(p, "reflection", k)
+        truth = np.sqrt(t0**2 + (xr_ / v) ** 2)
+        assert np.all(np.abs(tr_ - truth) < 2 * sr_ + 0.1)
+        # followed only while clear of the ground wave (x / v1)
+        assert np.all(np.abs(tr_ - xr_ / 0.11) > merge * T - T / 4)
+    # interfaces are numbered in time order
+    t1 = _phase(p, "reflection", 1)[1].min()
+    t2 = _phase(p, "reflection", 2)[1].min()
+    assert t1 < t2
+    # max_interfaces keeps the first event in time (interfaces count from the top)
+    q = sw.auto_pick(g, max_interfaces=1)
+    xq, tq, _ = _phase(q, "reflection", 1)
+    assert np.all(np.abs(tq - np.sqrt(16.0**2 + (xq / 0.11) ** 2)) < 1.0)
+    assert not np.any(q.interface.values == 2)
+
+
+def test_auto_pick_phase_consistent_polarity():
+    # A positive and a negative reflection: each is followed on its main lobe
+    # (trough for the negative one), so the picks sit on the true times.
+    g = gather(X, reflections=[(18.0, 0.1, 0.5), (36.0, 0.1, -0.5)], noise=0.02, seed=9)
+    p = sw.auto_pick(g)
+    for k, t0 in ((1, 18.0), (2, 36.0)):
+        xr_, tr_, _ = _phase(p, "reflection", k)
+        assert xr_.size >= 15
+        assert np.max(np.abs(tr_ - np.sqrt(t0**2 + (xr_ / 0.1) ** 2))) < T / 8
+
+
+def test_auto_pick_output_ready_for_merge_and_edit():
+    g = gather(X, reflections=[(20.0, 0.1, -0.4)], noise=0.02, seed=2)
+    p = sw.auto_pick(g)
+    manual = sw.make_picks([1.0], [22.4], "reflection", interface=1, sigma=0.3)
+    with pytest.warns(sw.SoilwaveWarning, match="duplicate pick"):
+        both = sw.merge_picks(p, manual)
+    assert both.sizes["pick"] == p.sizes["pick"] + 1
+    edited = sw.edit_pick(p, 0, sigma=1.0)
+    assert float(edited.sigma[0]) == 1.0
+    assert float(p.sigma[0]) < 1.0  # the input table is not changed
+    assert p.attrs["frequency_mhz"] == F
+
+
+def test_auto_pick_is_pure():
+    g = gather(X, reflections=[(20.0, 0.1, -0.4)], noise=0.02, seed=2)
+    before = g.copy(deep=True)
+    p = sw.auto_pick(g)
+    assert g.identical(before)
+    assert "auto_pick(" in p.attrs["history"].splitlines()[-1]
+
+
+def test_auto_pick_bad_input():
+    prof = gather_from_array(
+        np.zeros((6, 50)),
+        positions=np.arange(6.0),
+        dt_ns=0.5,
+        frequency_mhz=F,
+        antenna_separation_m=0.3,
+    )
+    with pytest.raises(InputError, match="multi-offset gather"):
+        sw.auto_pick(prof)
+    g = gather(X)
+    with pytest.raises(InputError, match="method must be"):
+        sw.auto_pick(g, method="guess")
+    with pytest.raises(InputError, match="max_interfaces"):
+        sw.auto_pick(g, max_interfaces=-1)
+    with pytest.raises(InputError, match="period_ns"):
+        sw.auto_pick(g, period_ns=-2.0)
+
+
+# --- weak and deep reflections (soilwave.synthetic forward model) ----------------------
+#
+# A 500 MHz CMP with offsets 0.2-2.4 m: the near-offset air and ground waves are
+# a few hundred times stronger than the reflections, and the noise (relative to
+# the gather's peak) leaves deeper reflections at or below the noise level on
+# every single trace. Reflection times for checking come from the straight-ray
+# geometry of a flat reflector, t = sqrt(4 z^2 + x^2) / v1 (derived).
+
+CMP_OFFSETS = np.round(np.arange(0.20, 2.40 + 1e-9, 0.05), 3)
+
+
+def cmp_gather(model, noise, seed):
+    return sw.synthetic_gather(
+        model,
+        offsets=CMP_OFFSETS,
+        dt_ns=0.1,
+        n_samples=700,
+        frequency_mhz=500.0,
+        t0_ns=-5.0,
+        noise=noise,
+        rng=seed,
+        return_arrivals=True,
+    )
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_weak_deeper_reflection_is_picked_on_partial_stacks(seed):
+    # Dry loam (e 6.7) over coarse sand (e 4.0) at 1.1 m: a weak positive
+    # reflection, below 3 noise levels on every trace, so it cannot be followed
+    # trace by trace; partial stacks of neighbouring traces give a few picks.
+    model = {"permittivity": [6.7, 4.0], "thickness": [1.1], "conductivity": [6.0, 1.0]}
+    g, arr = cmp_gather(model, 0.002, seed)
+    p = sw.auto_pick(g)
+    refl = arr.phase.values == "reflection"
+    assert np.max(np.abs(arr.amplitude.values[refl])) < 3 * p.attrs["noise_level"]
+    xr_, tr_, sr_ = _phase(p, "reflection", 1)
+    assert xr_.size >= 2
+    assert not np.any(p.interface.values > 1)
+    assert p.attrs["reflection_traces_per_pick"][0] > 1
+    v1 = C / np.sqrt(6.7)
+    truth = np.sqrt(4 * 1.1**2 + xr_**2) / v1
+    assert np.all(np.abs(tr_ - truth) < 2 * sr_)
+    # the noise level of a stack of n traces is sigma_n / sqrt(n)
+    n = p.attrs["reflection_traces_per_pick"][0]
+    sel = p.phase.values == "reflection"
+    assert np.all(p.amplitude_sigma.values[sel] <= p.attrs["noise_level"] / np.sqrt(n) * 1.0001)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_deep_wetting_front_is_interface_one(seed):
+    # A wet layer (e 19) 0.685 m thick over dry loam (e 6.7) over sand (e 4.0):
+    # the front reflection is about one noise level per trace; it must come out
+    # as interface 1 (ground-wave leakage in the semblance must not take that
+    # slot). Beyond the critical distance x_c = 2 z tan(asin(sqrt(6.7 / 19)))
+    # (Snell's law, derived: about 1.0 m) the reflection is total and its
+    # wavelet phase-rotated, so the main lobe drifts from the ray time: picks
+    # before x_c within 2 sigma, all within 3 sigma.
+    model = {
+        "permittivity": [19.0, 6.7, 4.0],
+        "thickness": [0.685, 0.415],
+        "conductivity": [14.0, 6.0, 1.0],
+    }
+    g, _ = cmp_gather(model, 0.004, seed)
+    p = sw.auto_pick(g)
+    xr_, tr_, sr_ = _phase(p, "reflection", 1)
+    assert xr_.size >= 3
+    v1 = C / np.sqrt(19.0)
+    assert p.attrs["reflection_t0_ns"][0] == pytest.approx(2 * 0.685 / v1, abs=1.0)
+    truth = np.sqrt(4 * 0.685**2 + xr_**2) / v1
+    x_c = 2 * 0.685 * np.tan(np.arcsin(np.sqrt(6.7 / 19.0)))
+    pre = xr_ < x_c
+    assert pre.sum() >= 1
+    assert np.all(np.abs(tr_ - truth)[pre] < 2 * sr_[pre])
+    assert np.all(np.abs(tr_ - truth) < 3 * sr_)
+
+
+@pytest.mark.parametrize(("eps", "sigma_ms"), [(6.7, 6.0), (19.0, 14.0)])
+def test_no_reflection_picks_without_a_reflector(eps, sigma_ms):
+    # One homogeneous layer: air and ground waves and noise only. The muted
+    # ground wave leaves semblance maxima near t0 = 3 ns and noise others;
+    # none may turn into reflection picks (four noise draws each).
+    model = {"permittivity": [eps], "thickness": [], "conductivity": [sigma_ms]}
+    for seed in range(4):
+        g, _ = cmp_gather(model, 0.004, seed)
+        p = sw.auto_pick(g)
+        assert not np.any(p.phase.values == "reflection"), seed
