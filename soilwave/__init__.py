@@ -221,12 +221,8 @@ __all__ += [
 
 # --- velocity analysis and automatic picking ---
 from soilwave.autopick import auto_pick, first_breaks, pick_line_arrivals  # noqa: E402
-from soilwave.semblance import (  # noqa: E402
-    fit_diffraction,
-    interval_velocities,
-    pick_semblance,
-    semblance,
-)
+from soilwave.diffraction import fit_diffraction  # noqa: E402
+from soilwave.semblance import interval_velocities, pick_semblance, semblance  # noqa: E402
 
 __all__ += [
     "auto_pick",

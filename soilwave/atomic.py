@@ -39,7 +39,9 @@ def check_target(path, overwrite: bool) -> Path:
     """
     path = Path(path)
     if path.exists() and not overwrite:
-        msg = f"{path} exists; pass overwrite=True (or the command's overwrite option) to replace it"
+        msg = (
+            f"{path} exists; pass overwrite=True (or the command's overwrite option) to replace it"
+        )
         raise OutputExistsError(msg)
     if not path.parent.is_dir():
         msg = f"{path}: folder {path.parent} does not exist; create it first"

@@ -1,4 +1,4 @@
-"""Automatic picking of multi-offset gathers: first breaks and reflection tracking.
+"""Automatic picking: first breaks and reflections on gathers, air and ground waves on lines.
 
 Layer 2. :func:`auto_pick` turns a multi-offset gather (CMP or WARR) into a
 pick table (:mod:`soilwave.picks`) ready for :func:`soilwave.invert`:
@@ -6,8 +6,12 @@ pick table (:mod:`soilwave.picks`) ready for :func:`soilwave.invert`:
 1. **Air wave.** A characteristic function marks the first arrival on every
    trace: the energy ratio (Coppens 1985, Geophys. Prospect. 33:1212-1231) of
    the energy in one period after a sample to the energy recorded up to it
-   (plus a small stabilising constant), or the STA/LTA ratio (short-term over
+   (plus a stabilising constant), or the STA/LTA ratio (short-term over
    long-term average of the squared amplitude; Allen 1978, value from memory).
+   The constant is at least the energy of one period of noise at the
+   gather's overall amplitude level (``1.4826 MAD`` of all samples, dominated
+   by noise), so that noise at the start of a weak far trace does not look
+   like an onset.
    Its maximum is an onset; the largest extremum within 1.5 periods after it
    is the arrival's main lobe. These times are held to the linear moveout
    of the air wave, ``t = x / c + dt0``: ``dt0`` is the median of the densest
@@ -34,8 +38,15 @@ pick table (:mod:`soilwave.picks`) ready for :func:`soilwave.invert`:
    where the event comes within ``merge_fraction`` periods of the ground
    wave, the air wave or another candidate event (the arrivals merge), where
    it is lost (more than ``max_gap`` traces in a row without an extremum
-   above ``min_snr`` noise levels) or where its lag behind the hyperbola
-   changes by more than half a period. Events repeating another event's
+   above ``min_snr`` local noise levels) or where its lag behind the hyperbola
+   changes by more than half a period. The local noise level is
+   ``sqrt(sigma_n^2 + leak^2)``: ``leak`` is the envelope the air and ground
+   waves still have at that time, their envelope amplitudes times the
+   wavelet's normalised envelope at that lag (measured on the leading half of
+   the strongest air-wave picks, taken as symmetric). Near offsets, where the
+   ground wave is hundreds of noise levels strong, its tail would otherwise
+   pass for a reflection; the semblance of the muted gather also has maxima
+   there (the truncated ground wave). Events repeating another event's
    picks are dropped. The first ``max_interfaces`` events in time are
    numbered 1, 2, ... (the inversion numbers interfaces from the top, so a
    deeper event never takes the place of a shallower one).
@@ -49,13 +60,16 @@ pick table (:mod:`soilwave.picks`) ready for :func:`soilwave.invert`:
    ``min_snr`` noise levels. Each group of ``n_b`` neighbouring clear traces
    is stacked along the hyperbola, the extremum of the event's polarity is
    sought within a quarter period of the previous group's lag, and a group
-   stack reaching ``min_snr`` noise levels gives one pick at the group's mean
+   stack reaching ``min_snr`` local noise levels (``sqrt(n) sigma_n`` plus the
+   summed ``leak`` of its traces) gives one pick at the group's mean
    offset (time: the hyperbola there plus the lag). Stacking ``n`` traces of
    white noise raises the signal-to-noise ratio by ``sqrt(n)`` (common
    practice), so such a pick's noise level is ``sigma_n / sqrt(n)`` and its
    amplitude the stack's envelope over ``n``. The semblance maximum (at
    least ``min_semblance``) is the detection; the stack test only drops
-   events too weak to time.
+   events too weak to time (with ``min_semblance`` lowered well below its
+   default, semblance maxima of noise can give single stacked picks).
+   Fixed-offset profiles: :func:`pick_line_arrivals`.
 
 Every pick sits on the main lobe (largest extremum) of its arrival, so all
 phases refer to the same point of the wavelet. With ``align_air=True`` the

@@ -237,12 +237,12 @@ def _add_batch(subparsers) -> None:
         help="invert every pick table (and gather) in a folder, in parallel, resumably",
         description=(
             "Invert every pick table (*.csv) in INPUT_DIR, and with --gathers every recorded "
-            "gather (*.nc, *.sgy, *.segy) after automatic picking, on a local process pool or "
-            "a dask.distributed cluster. Each result is saved to OUT_DIR/results/<name>.nc as "
-            "soon as it is done; running the same command again resumes where it stopped. "
-            "Failed gathers are listed in OUT_DIR/failed/ and the summary. Exit status 1 when "
-            "some gather failed. Moisture estimates need site calibration before decisions "
-            "rest on them."
+            "gather (*.nc, *.sgy, *.segy, or *.txt/*.csv with a .toml sidecar) after automatic "
+            "picking, on a local process pool or a dask.distributed cluster. Each result is "
+            "saved to OUT_DIR/results/<name>.nc as soon as it is done; running the same "
+            "command again resumes where it stopped. Failed gathers are listed in "
+            "OUT_DIR/failed/ and the summary. Exit status 1 when some gather failed. Moisture "
+            "estimates need site calibration before decisions rest on them."
         ),
     )
     p.add_argument("input_dir", metavar="INPUT_DIR", help="folder of pick tables / gathers")

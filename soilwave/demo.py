@@ -175,7 +175,9 @@ def run_demo(
     out.mkdir(parents=True, exist_ok=True)
     report_path = out / "report.txt"
     if report_path.exists() and not overwrite:
-        msg = f"{report_path} exists: an earlier demo run is there; pass --overwrite or another --out"
+        msg = (
+            f"{report_path} exists: an earlier demo run is there; pass --overwrite or another --out"
+        )
         raise OutputExistsError(msg)
     (out / "picks").mkdir(exist_ok=True)
     data = _find_data(data_dir, out, echo)
@@ -256,8 +258,11 @@ def run_demo(
     written.append(write_timelapse(front, out / "wetting_front.nc", overwrite=overwrite))
     fit = fit_green_ampt(front, seed=int(seeds[2]), progress=progress)
     written.append(write_dataset(fit.samples, out / "green_ampt.nc", overwrite=overwrite))
-    for name, obj in (("fig_front.png", plot_front(front, fit=fit)), ("fig_storage.png", plot_storage(front))):
-        written.append(_save_figure(_figure_of(obj), out / name, overwrite))
+    for name, obj in (
+        ("fig_front.png", plot_front(front, fit=fit)),
+        ("fig_storage.png", plot_storage(front)),
+    ):
+        written.append(_save_figure(obj, out / name, overwrite))
     lines.append("4. Wetting front (median and 90 % interval) and storage change")
     depths = dict(zip(truth.survey_hours, truth.front_depths(), strict=True))
     for t in front["time"].values:
@@ -293,7 +298,7 @@ def run_demo(
     line_wc = groundwave_water_content(line_picks, model=model, seed=int(seeds[3]))
     written.append(write_dataset(line_wc, out / "line_water_content.nc", overwrite=overwrite))
     fig = plot_water_content_section(line_wc)
-    written.append(_save_figure(_figure_of(fig), out / "fig_line_water_content.png", overwrite))
+    written.append(_save_figure(fig, out / "fig_line_water_content.png", overwrite))
     lines.append("5. Water content along the line (median over the line, per survey)")
     med = line_wc["water_content"].sel(quantile=0.5)
     for t in np.atleast_1d(line_wc["time"].values) if "time" in line_wc.dims else [None]:
@@ -316,11 +321,3 @@ def run_demo(
     echo(f"report: {report_path}")
     return report_path
 
-
-def _figure_of(obj):
-    """Return the Figure of a Figure, an Axes or an array of Axes."""
-    if hasattr(obj, "savefig"):
-        return obj
-    if hasattr(obj, "figure"):
-        return obj.figure
-    return np.asarray(obj).ravel()[0].figure

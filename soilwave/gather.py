@@ -28,14 +28,11 @@ Build gathers with :func:`gather_from_array`, check foreign ones with
 
 from __future__ import annotations
 
-import datetime as _dt
-from importlib.metadata import PackageNotFoundError
-from importlib.metadata import version as _pkg_version
-
 import numpy as np
 import xarray as xr
 
 from soilwave.errors import InputError
+from soilwave.provenance import history_line
 
 __all__ = [
     "GEOMETRIES",
@@ -64,13 +61,6 @@ _COORD_ATTRS = {
     "position": {"units": "m", "long_name": "position along the profile line"},
     "time": {"units": "ns", "long_name": "trace sample time"},
 }
-
-
-def _version() -> str:
-    try:
-        return _pkg_version("soilwave")
-    except PackageNotFoundError:  # pragma: no cover - running from a source tree
-        return "0+unknown"
 
 
 # --- validation helpers -----------------------------------------------------------
@@ -410,29 +400,6 @@ def sample_interval(gather) -> float:
     0.25
     """
     return _check_time_axis(gather["time"].values)
-
-
-def _format_arg(value) -> str:
-    if isinstance(value, float | np.floating):
-        return repr(float(value))
-    if isinstance(value, np.integer):
-        return repr(int(value))
-    if isinstance(value, list | tuple | np.ndarray):
-        return "[" + ", ".join(_format_arg(v) for v in value) + "]"
-    return repr(value)
-
-
-def history_line(step: str, **kwargs) -> str:
-    """One history line, ``"<ISO time> soilwave <version> <step>(<args>)"``.
-
-    Examples
-    --------
-    >>> history_line("dewow", window_ns=6.0).split(" ", 1)[1].split(" ", 2)[2]
-    'dewow(window_ns=6.0)'
-    """
-    now = _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds").replace("+00:00", "Z")
-    args = ", ".join(f"{k}={_format_arg(v)}" for k, v in kwargs.items())
-    return f"{now} soilwave {_version()} {step}({args})"
 
 
 def with_history(gather, step: str, **kwargs) -> xr.DataArray:

@@ -38,17 +38,16 @@ the dispatch and the shared checks.
 
 from __future__ import annotations
 
-import os
-import uuid
 from pathlib import Path
 
 import numpy as np
 import xarray as xr
 
-from soilwave.errors import FileFormatError, InputError, OutputExistsError
+from soilwave.atomic import atomic_write
+from soilwave.errors import FileFormatError, InputError
 from soilwave.gather import validate_gather
 
-__all__ = ["atomic_write", "extra_attrs", "finish_read", "read_gather", "write_gather"]
+__all__ = ["extra_attrs", "finish_read", "read_gather", "write_gather"]
 
 _NETCDF_SUFFIXES = (".nc",)
 _SEGY_SUFFIXES = (".sgy", ".segy")
@@ -69,40 +68,6 @@ def _kind(path: Path) -> str:
     known = ", ".join(_NETCDF_SUFFIXES + _SEGY_SUFFIXES + _TEXT_SUFFIXES)
     msg = f"{path}: unknown gather file suffix {path.suffix!r}; expected one of {known}"
     raise InputError(msg)
-
-
-# --- atomic writing ------------------------------------------------------------------
-
-
-def check_target(path: Path, overwrite: bool) -> None:
-    if path.exists() and not overwrite:
-        msg = f"{path} exists; pass overwrite=True to replace it"
-        raise OutputExistsError(msg)
-    if not path.parent.is_dir():
-        msg = f"{path}: folder {path.parent} does not exist"
-        raise InputError(msg)
-
-
-def _temp_name(path: Path) -> Path:
-    return path.with_name(f".{path.stem}.{uuid.uuid4().hex}.tmp{path.suffix}")
-
-
-def atomic_write(paths_and_writers, *, overwrite: bool) -> None:
-    """Write each ``(path, writer)`` to a temporary file, then move all into place."""
-    for path, _ in paths_and_writers:
-        check_target(path, overwrite)
-    temps = []
-    try:
-        for path, writer in paths_and_writers:
-            tmp = _temp_name(path)
-            temps.append(tmp)
-            writer(tmp)
-        for (path, _), tmp in zip(paths_and_writers, temps, strict=True):
-            os.replace(tmp, path)
-    finally:
-        for tmp in temps:
-            if tmp.exists():
-                tmp.unlink()
 
 
 # --- public entry points -------------------------------------------------------------

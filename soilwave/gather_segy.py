@@ -43,9 +43,10 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+from soilwave.atomic import atomic_write
 from soilwave.errors import FileFormatError, InputError
 from soilwave.gather import GEOMETRIES, gather_from_array
-from soilwave.gather_io import atomic_write, extra_attrs, finish_read
+from soilwave.gather_io import extra_attrs, finish_read
 from soilwave.gather_text import toml_key, toml_value
 
 __all__ = ["read_segy", "write_segy"]

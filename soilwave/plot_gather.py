@@ -45,6 +45,99 @@ def _lateral_label(dim):
     return "offset (m)" if dim == "offset" else "position (m)"
 
 
+def _edges(centres: np.ndarray) -> np.ndarray:
+    """Cell edges around strictly increasing centres (half-way points, extended at the ends)."""
+    c = np.asarray(centres, dtype=float)
+    if c.size == 1:
+        return np.array([c[0] - 0.5, c[0] + 0.5])
+    mid = 0.5 * (c[1:] + c[:-1])
+    return np.concatenate([[2 * c[0] - mid[0]], mid, [2 * c[-1] - mid[-1]]])
+
+
+def clip_level(values, clip: float) -> float:
+    """Amplitude at quantile ``clip`` of ``|values|`` (the largest value, or 1, if that is 0)."""
+    a = np.abs(np.asarray(values, dtype=float))
+    level = float(np.quantile(a, clip)) if a.size else 0.0
+    if not level > 0:
+        level = float(a.max()) if a.size and a.max() > 0 else 1.0
+    return level
+
+
+def draw_gather(ax, gather, *, kind="image", clip=0.99, cmap="gray", scale=1.0):
+    """Draw a gather on ``ax`` (cleared first): image or wiggles, time increasing down.
+
+    The shared drawing routine of :func:`plot_gather` and the notebook tools.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Axes to draw on.
+    gather : xarray.DataArray
+        Gather with dims ``(offset, time)`` or ``(position, time)``.
+    kind : {"image", "wiggle"}, optional
+        Grey-scale image, or wiggle traces with positive lobes filled.
+    clip : float, optional
+        Amplitudes beyond this quantile of ``|amplitude|`` are clipped (0 < clip <= 1).
+    cmap : str, optional
+        Colour map of the image.
+    scale : float, optional
+        Wiggle deflection at the clip level, in half trace spacings.
+
+    Returns
+    -------
+    (artist, float)
+        The image (``None`` for wiggles) and the clip level (amplitude units).
+    """
+    validate_gather(gather)
+    if kind not in ("image", "wiggle"):
+        msg = f"plot_gather: kind must be 'image' or 'wiggle'; got {kind!r}"
+        raise InputError(msg)
+    if not 0.0 < float(clip) <= 1.0:
+        msg = f"plot_gather: clip must lie in (0, 1]; got {clip!r}"
+        raise InputError(msg)
+    dim = str(gather.dims[0])
+    x = np.asarray(gather[dim].values, dtype=float)
+    t = np.asarray(gather["time"].values, dtype=float)
+    data = np.asarray(gather.values, dtype=float)
+    level = clip_level(data, float(clip))
+    ax.clear()
+    image = None
+    if kind == "image":
+        xe, te = _edges(x), _edges(t)
+        if x.size < 2 or np.allclose(np.diff(x), x[1] - x[0], rtol=1e-6, atol=0.0):
+            image = ax.imshow(
+                data.T,
+                cmap=cmap,
+                vmin=-level,
+                vmax=level,
+                aspect="auto",
+                interpolation="nearest",
+                extent=(xe[0], xe[-1], te[-1], te[0]),
+            )
+        else:  # uneven trace spacing: one cell per trace
+            image = ax.pcolormesh(
+                xe, te, data.T, cmap=cmap, vmin=-level, vmax=level, shading="flat", rasterized=True
+            )
+    else:
+        spacing = float(np.min(np.diff(x))) if x.size > 1 else 1.0
+        factor = float(scale) * 0.5 * spacing / level
+        for xi, trace in zip(x, data, strict=True):
+            w = np.clip(trace, -level, level) * factor
+            ax.plot(xi + w, t, color="k", lw=0.5)
+            ax.fill_betweenx(t, xi, xi + w, where=w > 0, color="k", lw=0, interpolate=True)
+        pad = 0.6 * spacing
+        ax.set_xlim(x[0] - pad, x[-1] + pad)
+    ax.set_ylim(t[-1], t[0])
+    ax.set_xlabel(_lateral_label(dim))
+    ax.set_ylabel("time (ns)")
+    freq = gather.attrs.get("frequency_mhz")
+    label = (
+        f"{gather.attrs.get('geometry', '')} gather" if dim == "offset" else "fixed-offset profile"
+    )
+    ax.set_title(label + (f", {float(freq):g} MHz" if freq else ""), fontsize="medium")
+    return image, level
+
+
 def plot_gather(gather, *, kind="image", ax=None, clip=0.99, cmap="gray", scale=1.0):
     """Draw a gather as an image or as wiggle traces.
 
@@ -57,11 +150,11 @@ def plot_gather(gather, *, kind="image", ax=None, clip=0.99, cmap="gray", scale=
     ax : matplotlib.axes.Axes, optional
         Axes to draw on; a new figure is made when omitted.
     clip : float, optional
-        Image colour limits at this quantile of ``|amplitude|`` (0 < clip <= 1).
+        Amplitudes beyond this quantile of ``|amplitude|`` are clipped (0 < clip <= 1).
     cmap : str, optional
         Colour map of the image.
     scale : float, optional
-        Wiggle amplitude, in trace spacings, of the largest amplitude.
+        Wiggle deflection at the clip level, in half trace spacings.
 
     Returns
     -------
@@ -77,45 +170,10 @@ def plot_gather(gather, *, kind="image", ax=None, clip=0.99, cmap="gray", scale=
     >>> fig.axes[0].get_ylabel()
     'time (ns)'
     """
-    validate_gather(gather)
-    if kind not in ("image", "wiggle"):
-        msg = f"plot_gather: kind must be 'image' or 'wiggle'; got {kind!r}"
-        raise InputError(msg)
-    if not 0.0 < float(clip) <= 1.0:
-        msg = f"plot_gather: clip must lie in (0, 1]; got {clip!r}"
-        raise InputError(msg)
-    dim = gather.dims[0]
-    lat = np.asarray(gather[dim].values, dtype=float)
-    t = np.asarray(gather["time"].values, dtype=float)
-    data = np.asarray(gather.values, dtype=float)
     fig, ax = _axes(ax)
-    if kind == "image":
-        lim = float(np.quantile(np.abs(data), clip)) or 1.0
-        dl = np.diff(lat).mean() if lat.size > 1 else 1.0
-        dt = t[1] - t[0]
-        im = ax.imshow(
-            data.T,
-            aspect="auto",
-            cmap=cmap,
-            vmin=-lim,
-            vmax=lim,
-            extent=(lat[0] - dl / 2, lat[-1] + dl / 2, t[-1] + dt / 2, t[0] - dt / 2),
-            interpolation="nearest",
-        )
-        fig.colorbar(im, ax=ax, label=f"amplitude ({gather.attrs.get('units', '1')})")
-    else:
-        spacing = float(np.median(np.diff(lat))) if lat.size > 1 else 1.0
-        amax = float(np.max(np.abs(data))) or 1.0
-        for x0, tr in zip(lat, data, strict=False):
-            w = x0 + float(scale) * spacing * tr / amax
-            ax.plot(w, t, color="k", lw=0.6)
-            ax.fill_betweenx(t, x0, w, where=w > x0, color="k", lw=0)
-        ax.set_ylim(t[-1], t[0])
-    ax.set_xlabel(_lateral_label(dim))
-    ax.set_ylabel("time (ns)")
-    geometry = gather.attrs.get("geometry", "")
-    freq = gather.attrs.get("frequency_mhz")
-    ax.set_title(f"{geometry} gather" + (f", {float(freq):g} MHz" if freq else ""))
+    image, _ = draw_gather(ax, gather, kind=kind, clip=clip, cmap=cmap, scale=scale)
+    if image is not None:
+        fig.colorbar(image, ax=ax, label=f"amplitude ({gather.attrs.get('units', '1')})")
     return fig
 
 

@@ -50,7 +50,7 @@ def plot_front(front, *, fit=None, ax=None, bands=((0.05, 0.95), (0.16, 0.84)), 
 
     Returns
     -------
-    matplotlib.axes.Axes
+    matplotlib.figure.Figure
     """
     if "front_depth" not in front:
         msg = "front dataset has no 'front_depth' (from soilwave.track_front)"
@@ -92,7 +92,7 @@ def plot_front(front, *, fit=None, ax=None, bands=((0.05, 0.95), (0.16, 0.84)), 
     ax.invert_yaxis()
     ax.legend(loc="best", fontsize="small")
     ax.set_title("wetting front")
-    return ax
+    return ax.figure
 
 
 def plot_storage(front, *, ax=None):
@@ -107,7 +107,7 @@ def plot_storage(front, *, ax=None):
 
     Returns
     -------
-    matplotlib.axes.Axes
+    matplotlib.figure.Figure
     """
     if "storage_change" not in front:
         msg = "front dataset has no 'storage_change' (from soilwave.track_front)"
@@ -125,7 +125,7 @@ def plot_storage(front, *, ax=None):
     ax.set_ylabel("water (mm)")
     ax.legend(loc="best", fontsize="small")
     ax.set_title("storage change")
-    return ax
+    return ax.figure
 
 
 def plot_water_content_section(wc, *, uncertainty="interval", axes=None, cmap="viridis_r"):
@@ -146,8 +146,8 @@ def plot_water_content_section(wc, *, uncertainty="interval", axes=None, cmap="v
 
     Returns
     -------
-    tuple of matplotlib.axes.Axes
-        (water-content panel, uncertainty panel).
+    matplotlib.figure.Figure
+        Axes 0: water content; axes 1: uncertainty (colour bars follow).
     """
     if "water_content" not in wc:
         msg = "dataset has no 'water_content' (from soilwave.groundwave_water_content)"
@@ -202,4 +202,4 @@ def plot_water_content_section(wc, *, uncertainty="interval", axes=None, cmap="v
     ax0.set_ylabel("time (h)")
     ax0.set_title("water content")
     ax1.set_title("uncertainty")
-    return ax0, ax1
+    return ax0.figure

@@ -65,7 +65,8 @@ import xarray as xr
 from soilwave.earth import LayeredEarth
 from soilwave.errors import InputError
 from soilwave.fresnel import fresnel_coefficients
-from soilwave.gather import gather_from_array, history_line
+from soilwave.gather import gather_from_array
+from soilwave.provenance import history_line
 from soilwave.traveltime import head_wave_time, reflection_rays
 from soilwave.wave import SPEED_OF_LIGHT
 from soilwave.wavelets import shifted_wavelet_sum

@@ -31,13 +31,12 @@ import warnings
 
 import ipywidgets as widgets
 import matplotlib
-import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from soilwave.errors import InputError, SoilwaveError
 
-__all__ = ["FigurePane", "draw_gather", "interactive_backend_active"]
+__all__ = ["FigurePane", "interactive_backend_active"]
 
 #: Colours of pick phases and predicted-curve phases (shared by every tool).
 PHASE_COLOURS = {
@@ -216,96 +215,6 @@ class Tool:
 
 
 # --- gather drawing ----------------------------------------------------------------
-
-
-def _edges(centres: np.ndarray) -> np.ndarray:
-    """Cell edges around strictly increasing centres (half-way points, extended at the ends)."""
-    c = np.asarray(centres, dtype=float)
-    if c.size == 1:
-        return np.array([c[0] - 0.5, c[0] + 0.5])
-    mid = 0.5 * (c[1:] + c[:-1])
-    return np.concatenate([[2 * c[0] - mid[0]], mid, [2 * c[-1] - mid[-1]]])
-
-
-def clip_level(values, percentile: float) -> float:
-    """Amplitude at the given percentile of ``|values|`` (1 if the data are all zero)."""
-    a = np.abs(np.asarray(values, dtype=float))
-    level = float(np.percentile(a, percentile)) if a.size else 0.0
-    if not level > 0:
-        level = float(a.max()) if a.size and a.max() > 0 else 1.0
-    return level
-
-
-def draw_gather(ax, gather, *, style="image", clip_percentile=99.0, cmap="gray"):
-    """Draw a gather on ``ax``: greyscale image or wiggle traces, time increasing down.
-
-    Parameters
-    ----------
-    ax : matplotlib.axes.Axes
-        Axes to draw on (cleared first).
-    gather : xarray.DataArray
-        Gather with dims (offset, time) or (position, time).
-    style : {"image", "wiggle"}
-        Image of amplitudes, or one line per trace with positive lobes filled.
-    clip_percentile : float
-        Amplitudes beyond this percentile of ``|amplitude|`` are clipped
-        (0 < p <= 100).
-    cmap : str
-        Colour map of the image.
-
-    Returns
-    -------
-    float
-        The clip level used (amplitude units of the gather).
-    """
-    if style not in ("image", "wiggle"):
-        msg = f"display style must be 'image' or 'wiggle'; got {style!r}"
-        raise InputError(msg)
-    p = float(clip_percentile)
-    if not 0 < p <= 100:
-        msg = f"clip percentile must be in (0, 100]; got {clip_percentile!r}"
-        raise InputError(msg)
-    dim = str(gather.dims[0])
-    x = np.asarray(gather[dim].values, dtype=float)
-    t = np.asarray(gather["time"].values, dtype=float)
-    data = np.asarray(gather.values, dtype=float)
-    level = clip_level(data, p)
-    ax.clear()
-    if style == "image":
-        xe, te = _edges(x), _edges(t)
-        if x.size < 2 or np.allclose(np.diff(x), x[1] - x[0], rtol=1e-6, atol=0.0):
-            ax.imshow(
-                data.T,
-                cmap=cmap,
-                vmin=-level,
-                vmax=level,
-                aspect="auto",
-                interpolation="nearest",
-                extent=(xe[0], xe[-1], te[-1], te[0]),
-            )
-        else:  # uneven trace spacing: one cell per trace
-            ax.pcolormesh(
-                xe, te, data.T, cmap=cmap, vmin=-level, vmax=level, shading="flat", rasterized=True
-            )
-    else:
-        spacing = float(np.min(np.diff(x))) if x.size > 1 else 1.0
-        scale = 0.5 * spacing / level
-        for xi, trace in zip(x, data, strict=True):
-            w = np.clip(trace, -level, level) * scale
-            ax.plot(xi + w, t, color="k", lw=0.5)
-            ax.fill_betweenx(t, xi, xi + w, where=w > 0, color="k", lw=0, interpolate=True)
-        pad = 0.6 * spacing
-        ax.set_xlim(x[0] - pad, x[-1] + pad)
-    ax.set_ylim(t[-1], t[0])
-    ax.set_xlabel(f"{dim} (m)")
-    ax.set_ylabel("time (ns)")
-    geometry = gather.attrs.get("geometry", "")
-    freq = gather.attrs.get("frequency_mhz")
-    label = f"{geometry} gather" if dim == "offset" else "fixed-offset profile"
-    if freq:
-        label += f", {float(freq):g} MHz"
-    ax.set_title(label, fontsize="medium")
-    return level
 
 
 def curve_colour(phase: str, interface: int = 0) -> str:

@@ -15,8 +15,9 @@ import numpy as np
 
 from soilwave import processing
 from soilwave.gather import sample_interval, validate_gather
+from soilwave.plot_gather import draw_gather
 from soilwave.wave import SPEED_OF_LIGHT
-from soilwave.widgets_figure import FigurePane, Tool, draw_gather, guarded
+from soilwave.widgets_figure import FigurePane, Tool, guarded
 
 __all__ = ["GatherViewer"]
 
@@ -309,10 +310,10 @@ class GatherViewer(Tool):
         )
 
     def _draw(self) -> None:
-        self.clip_level = draw_gather(
+        _, self.clip_level = draw_gather(
             self.ax,
             self.processed,
-            style=self.style.value,
-            clip_percentile=self.clip_percentile.value,
+            kind=self.style.value,
+            clip=self.clip_percentile.value / 100.0,
         )
         self._pane.refresh()

@@ -18,6 +18,7 @@ from soilwave.errors import InputError
 from soilwave.gather import validate_gather
 from soilwave.layered import vertical_twt
 from soilwave.picks import validate_picks
+from soilwave.plot_gather import draw_gather
 from soilwave.traveltime import (
     PHASES_MODELLED,
     TravelTimeOperator,
@@ -27,7 +28,7 @@ from soilwave.traveltime import (
     reflection_time,
 )
 from soilwave.wave import wave_velocity
-from soilwave.widgets_figure import FigurePane, Tool, curve_colour, draw_gather, guarded
+from soilwave.widgets_figure import FigurePane, Tool, curve_colour, guarded
 
 __all__ = ["LayerModelExplorer"]
 
@@ -312,7 +313,7 @@ class LayerModelExplorer(Tool):
     def _draw_background(self) -> None:
         ax = self.ax
         if self.gather is not None:
-            draw_gather(ax, self.gather, style="image")
+            draw_gather(ax, self.gather)
         else:
             ax.set_xlabel("offset (m)")
             ax.set_ylabel("time (ns)")

@@ -13,7 +13,7 @@ import ipywidgets as widgets
 import numpy as np
 
 from soilwave.errors import InputError, SoilwaveError
-from soilwave.gather import history_line, validate_gather
+from soilwave.gather import validate_gather
 from soilwave.picks import (
     PHASES,
     default_sigma,
@@ -24,7 +24,9 @@ from soilwave.picks import (
     validate_picks,
     write_picks,
 )
-from soilwave.widgets_figure import FigurePane, Tool, curve_colour, draw_gather, guarded
+from soilwave.plot_gather import draw_gather
+from soilwave.provenance import history_line
+from soilwave.widgets_figure import FigurePane, Tool, curve_colour, guarded
 
 __all__ = ["PickEditor"]
 
@@ -359,7 +361,7 @@ class PickEditor(Tool):
     def _draw_background(self, offset_range, time_range) -> None:
         ax = self.ax
         if self.gather is not None:
-            draw_gather(ax, self.gather, style="image")
+            draw_gather(ax, self.gather)
         else:
             if self.picks is not None:
                 x = self.picks["offset"].values

@@ -206,8 +206,8 @@ def test_changed_input_is_refused_unless_overwrite(tmp_path):
     inp = make_pick_folder(tmp_path / "in", 1, corrupt=False)
     out = tmp_path / "out"
     sw.run_batch(inp, out, workers=0, progress=False)
-    with open(inp / "cmp_000.csv", "a") as fh:
-        fh.write("3.5,40.0,0.3,reflection,1\n")
+    path = inp / "cmp_000.csv"
+    path.write_text("# note: re-picked\n" + path.read_text())  # same picks, new file
     with pytest.raises(sw.OutputExistsError, match=r"different version of its input.*overwrite"):
         sw.run_batch(inp, out, workers=0, progress=False)
     assert sw.run_batch(inp, out, workers=0, overwrite=True, progress=False).n_new == 1

@@ -59,7 +59,7 @@ def _fit():
 def test_plot_front_with_fit():
     front = _front()
     fit = _fit()
-    ax = plot_front(front, fit=fit)
+    ax = plot_front(front, fit=fit).axes[0]
     assert ax.get_ylabel() == "front depth (m)"
     assert ax.yaxis_inverted()
     # the medians are drawn at the survey times
@@ -82,7 +82,7 @@ def test_plot_front_with_fit():
 
 
 def test_plot_storage():
-    ax = plot_storage(_front())
+    ax = plot_storage(_front()).axes[0]
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
     assert "applied water" in labels
     assert ax.get_ylabel() == "water (mm)"
@@ -104,14 +104,14 @@ def test_water_content_section_image_and_uncertainty():
             frequency_mhz=250,
         )
     wc = sw.groundwave_water_content(lines, seed=1, n_draws=500)
-    ax0, ax1 = plot_water_content_section(wc)
+    ax0, ax1 = plot_water_content_section(wc).axes[:2]
     img = ax0.collections[0].get_array().reshape(2, 6)
     np.testing.assert_allclose(img, wc["water_content"].sel(quantile=0.5).values.T)
     unc = ax1.collections[0].get_array().reshape(2, 6)
     q = wc["water_content"]
     np.testing.assert_allclose(unc, (q.sel(quantile=0.95) - q.sel(quantile=0.05)).values.T)
     assert ax0.get_xlabel() == "position (m)" and ax0.get_ylabel() == "time (h)"
-    ax0, ax1 = plot_water_content_section(wc.isel(time=0), uncertainty="sd")
+    ax0, ax1 = plot_water_content_section(wc.isel(time=0), uncertainty="sd").axes[:2]
     sd = ax1.collections[0].get_array().ravel()
     np.testing.assert_allclose(sd, wc["water_content_sd"].isel(time=0).values)
 
@@ -128,7 +128,7 @@ def test_non_separable_positions_are_marked():
     )
     with pytest.warns(sw.RangeWarning):
         wc = sw.groundwave_water_content(p, seed=0, n_draws=200)
-    ax0, _ = plot_water_content_section(wc)
+    ax0 = plot_water_content_section(wc).axes[0]
     marks = [ln for ln in ax0.get_lines() if ln.get_label() == "waves not separable"]
     assert marks and marks[0].get_xdata().tolist() == pos.tolist()
 
