@@ -220,8 +220,10 @@ __all__ += [
 ]
 
 # --- velocity analysis and automatic picking ---
-from soilwave.autopick import auto_pick, first_breaks, pick_line_arrivals  # noqa: E402
+from soilwave.autopick import auto_pick  # noqa: E402
 from soilwave.diffraction import fit_diffraction  # noqa: E402
+from soilwave.firstbreaks import first_breaks  # noqa: E402
+from soilwave.line_picks import pick_line_arrivals  # noqa: E402
 from soilwave.semblance import interval_velocities, pick_semblance, semblance  # noqa: E402
 
 __all__ += [

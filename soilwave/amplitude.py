@@ -236,14 +236,16 @@ def ground_wave_log_amplitude(
     return np.where(valid[..., None], out, np.nan)
 
 
-def _reflection_terms(x, h, eps, sig, k, f, low_loss):
+def _reflection_terms(x, h, eps, sig, k, f, low_loss, p=None):
     """Log amplitude (no gain) of the reflection from interface ``k`` (1-based).
 
     ``h`` (B, >= k), ``eps`` and ``sig`` (B, >= k + 1) are already broadcast to
-    a common flat batch B and sanitised; returns (B, n).
+    a common flat batch B and sanitised; ``p`` (B, n), when given, is the ray
+    parameter already traced for these models and offsets. Returns (B, n).
     """
     v = C_M_PER_NS / np.sqrt(eps[:, : k + 1])
-    _, p = reflection_rays(x, h[:, :k], v[:, :k], interface=k)  # (B, n)
+    if p is None:
+        _, p = reflection_rays(x, h[:, :k], v[:, :k], interface=k)  # (B, n)
     sin_t = p[:, :, None] * v[:, None, :]  # (B, n, k + 1); beyond 1 below a faster layer
     cos_t = np.sqrt(np.clip(1.0 - sin_t[..., :k] ** 2, 0.0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -329,12 +331,14 @@ def reflection_log_amplitude(
     return _reflection_batch(x, h, eps, sig, k, f, low_loss, batch)
 
 
-def _reflection_batch(x, h, eps, sig, k, f, low_loss, batch):
+def _reflection_batch(x, h, eps, sig, k, f, low_loss, batch, p=None):
     m = int(np.prod(batch, dtype=int))
+    if p is not None:
+        p = np.broadcast_to(p, (*batch, x.size)).reshape(m, x.size)
     ok_h, hb = _safe(np.broadcast_to(h[..., :k], (*batch, k)).reshape(m, k), 0.0)
     ok_e, eb = _safe(np.broadcast_to(eps[..., : k + 1], (*batch, k + 1)).reshape(m, k + 1), 1.0)
     ok_s, sb = _safe(np.broadcast_to(sig[..., :k], (*batch, k)).reshape(m, k), 0.0)
-    out = _reflection_terms(x, hb, eb, sb, k, f, low_loss)
+    out = _reflection_terms(x, hb, eb, sb, k, f, low_loss, p)
     out = np.where((ok_h & ok_e & ok_s)[:, None], out, np.nan)
     return out.reshape(*batch, x.size)
 
@@ -497,7 +501,17 @@ class AmplitudeOperator:
             f"frequency_mhz={self.frequency_mhz:g}; {parts})"
         )
 
-    def __call__(self, thickness, permittivity, conductivity, log_gain=0.0) -> np.ndarray:
+    def reflection_groups(self) -> dict:
+        """Pick indices of the reflections from each interface: ``{k: idx}``.
+
+        The order of ``idx`` is the order of the ``rays[k]`` entries that
+        :meth:`__call__` accepts.
+        """
+        return {k: idx.copy() for name, k, idx in self._groups if name == "reflection"}
+
+    def __call__(
+        self, thickness, permittivity, conductivity, log_gain=0.0, *, rays=None
+    ) -> np.ndarray:
         """Predicted natural-log amplitudes ``log|A|``, shape ``(..., n_pick)``.
 
         Parameters
@@ -512,6 +526,12 @@ class AmplitudeOperator:
         log_gain : array_like, optional
             Natural-log gain per wave family, shape ``(..., len(families))``,
             or a scalar applied to every family.
+        rays : dict, optional
+            Ray parameters (ns/m) already traced by
+            :func:`soilwave.traveltime.reflection_rays` for these models:
+            ``{k: p}`` with ``p`` of shape ``(..., len(idx))`` for the picks
+            ``idx`` of :meth:`reflection_groups`; saves tracing them again when
+            a travel-time model traced them. Velocities must be ``c / sqrt(eps)``.
 
         Returns
         -------
@@ -555,7 +575,8 @@ class AmplitudeOperator:
             elif name == "ground":
                 a = ground_wave_log_amplitude(x, eps, sig, frequency_mhz=f, low_loss=self.low_loss)
             else:
-                a = _reflection_batch(x, h, eps, sig, k, f, self.low_loss, batch)
+                p = None if rays is None else rays.get(k)
+                a = _reflection_batch(x, h, eps, sig, k, f, self.low_loss, batch, p)
             out[..., idx] = np.broadcast_to(a, (*batch, idx.size))
         # one unphysical entry anywhere in the used part of a model rejects the whole model
         ni = self.n_interfaces

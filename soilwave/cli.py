@@ -191,7 +191,12 @@ def _add_demo(sub) -> None:
             "fit Green-Ampt, map the line, and write NetCDF results, PNG figures and a report."
         ),
     )
-    p.add_argument("--out", default="soilwave-demo-output", help="output folder")
+    p.add_argument(
+        "--out",
+        default=None,
+        help="output folder (default soilwave-demo-output, or the next free "
+        "soilwave-demo-output-N when that holds an earlier run)",
+    )
     p.add_argument("--data", default=None, help="demo data folder (default ./data_demo)")
     p.add_argument("--seed", type=int, default=0, help="master random seed (default 0)")
     p.add_argument("--overwrite", action="store_true", help="replace an earlier run's files")
@@ -200,10 +205,18 @@ def _add_demo(sub) -> None:
 
 
 def _run_demo(args) -> int:
+    from pathlib import Path
+
     from soilwave.demo import run_demo
 
+    out = args.out
+    if out is None:
+        out, n = Path("soilwave-demo-output"), 1
+        while (out / "report.txt").exists() and not args.overwrite:
+            n += 1
+            out = Path(f"soilwave-demo-output-{n}")
     run_demo(
-        args.out,
+        out,
         data_dir=args.data,
         seed=args.seed,
         overwrite=args.overwrite,

@@ -187,6 +187,15 @@ def run_demo(
     lines = ["soilwave demo report", "=" * 20, DEMO_NOTE, f"soilwave {software_version()}", ""]
     written = []
     steps = tqdm(total=6, desc="soilwave demo", disable=not progress, unit="step")
+    timings = {}
+    mark = time.perf_counter()
+
+    def done(name):
+        nonlocal mark
+        now = time.perf_counter()
+        timings[name] = now - mark
+        mark = now
+        steps.update()
 
     # 1. calibration
     eps_c, theta_c = _read_cores(data / manifest["demo"]["calibration"])
@@ -200,7 +209,7 @@ def run_demo(
         f"   (invented truth: {truth.porosity:.3f})",
         "",
     ]
-    steps.update()
+    done("calibration")
 
     # 2. picks on every multi-offset gather
     cmp_surveys = [s for s in manifest["surveys"] if s["kind"] == "cmp"]
@@ -218,7 +227,7 @@ def run_demo(
         n_int = int(p["interface"].max())
         lines.append(f"   {h:6.1f} h: {counts} interfaces found: {n_int}")
     lines.append("")
-    steps.update()
+    done("picking")
 
     # 3. inversion of the last survey
     last = max(picks)
@@ -245,7 +254,7 @@ def run_demo(
         + " m"
     )
     lines.append("")
-    steps.update()
+    done("inversion")
 
     # 4. wetting front and infiltration
     front_picks = {}
@@ -283,7 +292,7 @@ def run_demo(
         f"(truth {truth.suction_head_cm})",
         "",
     ]
-    steps.update()
+    done("wetting front")
 
     # 5. the line map
     line_surveys = [s for s in manifest["surveys"] if s["kind"] == "line"]
@@ -308,16 +317,16 @@ def run_demo(
             f"range {float(row.min()):.3f}-{float(row.max()):.3f} m3/m3"
         )
     lines.append("")
-    steps.update()
+    done("line map")
 
     # 6. report
-    lines.append(f"Finished in {time.perf_counter() - start:.0f} s. Files:")
+    spent = ", ".join(f"{k} {v:.0f} s" for k, v in timings.items())
+    lines.append(f"Finished in {time.perf_counter() - start:.0f} s ({spent}). Files:")
     lines += [f"   {Path(p).relative_to(out)}" for p in written]
     lines += ["", CAUTIONS]
     write_text(report_path, "\n".join(lines), overwrite=overwrite)
-    steps.update()
+    done("report")
     steps.close()
     echo("\n".join(lines))
     echo(f"report: {report_path}")
     return report_path
-

@@ -50,9 +50,11 @@ Sampling
 --------
 emcee's affine-invariant ensemble sampler (Goodman & Weare 2010;
 Foreman-Mackey et al. 2013) in ``(ln K, ln psi, delta_theta)`` (or
-``(ln S, A, delta_theta)``), vectorised, run until the chain is at least 50
-integrated autocorrelation times long (emcee documentation); burn-in 3 tau,
-thinning tau/2; tau, acceptance, ESS and R-hat from :mod:`soilwave.sampling`.
+``(ln S, A, delta_theta)``) through :func:`soilwave.sampling.run_emcee`,
+started around the best point of a 41 x 41 grid over the first two
+coordinates: run until the chain is at least 50 integrated autocorrelation
+times long (emcee documentation), burn-in and thinning from tau, and tau,
+acceptance, ESS and R-hat in :attr:`InfiltrationFit.diagnostics`.
 
 Examples
 --------
@@ -76,14 +78,12 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import time as _time
-import warnings
 
 import numpy as np
 import pandas as pd
 import xarray as xr
 
-from soilwave.errors import ConvergenceWarning, InputError
+from soilwave.errors import InputError
 from soilwave.infiltration import (
     RAWLS_1983,
     green_ampt_front_depth,
@@ -91,6 +91,7 @@ from soilwave.infiltration import (
     philip_infiltration,
 )
 from soilwave.provenance import append_history
+from soilwave.sampling import run_emcee
 
 __all__ = ["InfiltrationFit", "fit_green_ampt", "fit_philip"]
 
@@ -101,98 +102,6 @@ S_BOUNDS = (0.01, 100.0)
 A_BOUNDS_CM_H = (0.0, 50.0)
 DTHETA_BOUNDS = (0.005, 0.7)
 QUANTILES = (0.05, 0.16, 0.5, 0.84, 0.95)
-
-
-# --- the ensemble run ------------------------------------------------------------------
-
-
-def _run_ensemble(
-    log_prob,
-    x0,
-    scale,
-    *,
-    names,
-    seed,
-    n_walkers=32,
-    max_steps=20000,
-    min_steps=500,
-    tau_factor=50.0,
-    burn_in_factor=3.0,
-    check_every=250,
-    progress=False,
-):
-    """Run emcee on a vectorised ``log_prob`` from a Gaussian ball around ``x0``.
-
-    TEMPORARY: :mod:`soilwave.sampling` offers only ``run_inversion_sampler``,
-    which is bound to the layered-earth ``LogPosterior``; this small private
-    loop calls emcee directly and reuses that module's seeding, initial
-    ensemble and diagnostics until it offers a generic entry point.
-    Returns ``(samples (n, ndim), log_prob (n,), diagnostics dict)``.
-    """
-    import emcee
-
-    from soilwave import sampling
-
-    t_start = _time.perf_counter()
-    x0 = np.asarray(x0, float)
-    ndim = x0.size
-    n_walkers = max(int(n_walkers), 2 * ndim + 2)
-    n_walkers += n_walkers % 2
-    rng, emcee_random = sampling._seed_streams(seed)
-    cov = np.diag(np.asarray(scale, float) ** 2)
-    p0 = sampling.initial_ensemble(log_prob, x0, cov, n_walkers, rng=rng)
-    moves = [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
-    sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, vectorize=True, moves=moves)
-    sampler._random = emcee_random
-    state, n_steps, reached = p0, 0, False
-    tau = np.full(ndim, np.inf)
-    while n_steps < max_steps:
-        target = min(max_steps, max(n_steps + check_every, min_steps))
-        state = sampler.run_mcmc(state, target - n_steps, progress=progress)
-        n_steps = target
-        tau = sampler.get_autocorr_time(tol=0)
-        if np.all(np.isfinite(tau)) and n_steps >= tau_factor * np.max(tau):
-            reached = True
-            break
-    chain = sampler.get_chain()
-    lp_chain = sampler.get_log_prob()
-    finite = np.isfinite(tau)
-    tau_max = float(np.max(tau[finite])) if finite.any() else float(n_steps)
-    tau_min = float(np.min(tau[finite])) if finite.any() else 1.0
-    burn_in = min(math.ceil(burn_in_factor * tau_max), n_steps // 2)
-    thin = max(1, int(0.5 * tau_min))
-    ess, rhat = sampling._diagnose(chain, burn_in, 4)
-    kept = np.arange(burn_in, n_steps, thin)
-    reasons = []
-    if not reached:
-        reasons.append(
-            f"chain of {n_steps} steps is shorter than {tau_factor:g} autocorrelation times "
-            f"(max tau {tau_max:.1f}); raise max_steps"
-        )
-    if not np.all(rhat < 1.01):
-        worst = int(np.nanargmax(rhat)) if np.any(np.isfinite(rhat)) else 0
-        reasons.append(f"R-hat {rhat[worst]:.3f} for {names[worst]} exceeds 1.01")
-    if reasons:
-        warnings.warn(
-            "sampler did not converge: " + "; ".join(reasons), ConvergenceWarning, stacklevel=3
-        )
-    diagnostics = {
-        "parameter": list(names),
-        "tau": np.asarray(tau, float),
-        "ess": ess,
-        "rhat": rhat,
-        "acceptance": float(np.mean(sampler.acceptance_fraction)),
-        "converged": not reasons,
-        "reason": "; ".join(reasons)
-        if reasons
-        else "chain longer than tau_factor * tau and R-hat ok",
-        "n_steps": int(n_steps),
-        "n_walkers": int(n_walkers),
-        "burn_in": int(burn_in),
-        "thin": int(thin),
-        "wall_time_s": float(_time.perf_counter() - t_start),
-    }
-    return chain[kept].reshape(-1, ndim), lp_chain[kept].reshape(-1), diagnostics
 
 
 # --- result ------------------------------------------------------------------------------
@@ -457,16 +366,17 @@ def _fit(front, model, *, seed, delta_theta, model_error, n_walkers, max_steps, 
     if fixed_dtheta:
         names = names[:2]
         scale = scale[:2]
-    samples, _lp, diag = _run_ensemble(
+    run = run_emcee(
         log_prob,
         x0,
-        scale,
+        np.diag(scale**2),
         names=names,
         seed=seed,
         n_walkers=n_walkers,
         max_steps=max_steps,
         progress=progress,
     )
+    samples, diag = run.samples, run.diagnostics
     if fixed_dtheta:
         samples = np.concatenate([samples, np.full((samples.shape[0], 1), dm)], axis=1)
     n = samples.shape[0]

@@ -34,6 +34,19 @@ documented, configurable prior:
     deviation ``noise_scale_sd`` (default 0.5, so the central 95 % lies in
     about [0.38, 2.7]); it lets the data widen or narrow over-confident or
     over-cautious pick uncertainties. ``noise_scale_sd=None`` fixes it to 1.
+``conductivity`` (per layer, mS/m; only when the picks carry amplitudes)
+    Electrical conductivity. Default **log-uniform** on ``[0.1, 1000]`` mS/m:
+    positive, and spreading prior mass evenly over the four decades from
+    very resistive dry sand (below 1 mS/m) to saline clay (hundreds of
+    mS/m; clays 2-1000 mS/m after Davis & Annan 1989). Amplitudes constrain
+    only the layers their rays cross; the others keep this prior.
+``amplitude_noise_scale`` (dimensionless; only with amplitudes)
+    A common factor on the log-amplitude uncertainties, like
+    ``noise_scale`` for times. Log-normal with median 1 and log-space
+    standard deviation ``amplitude_noise_scale_sd`` (default 1.0, wider than
+    for times because amplitude errors are harder to state: antenna
+    coupling and interference of arrivals are not modelled); ``None`` fixes
+    it to 1.
 
 All densities are normalised, in physical units; :mod:`soilwave.posterior`
 adds the Jacobian of its sampling parameterisation so these stay the priors
@@ -88,6 +101,11 @@ class Priors:
     noise_scale_sd : float or None
         Log-space standard deviation of the log-normal (median 1) prior of the
         pick-noise scale (default 0.5); ``None`` fixes the scale at 1.
+    conductivity_min, conductivity_max : float
+        Bounds of the log-uniform conductivity prior, mS/m (default 0.1 and 1000).
+    amplitude_noise_scale_sd : float or None
+        Log-space standard deviation of the log-normal (median 1) prior of the
+        amplitude-noise scale (default 1.0); ``None`` fixes it at 1.
 
     Examples
     --------
@@ -104,6 +122,9 @@ class Priors:
     time_zero_mean: float | None = None
     time_zero_sd: float = 2.0
     noise_scale_sd: float | None = 0.5
+    conductivity_min: float = 0.1
+    conductivity_max: float = 1000.0
+    amplitude_noise_scale_sd: float | None = 1.0
 
     def __post_init__(self):
         if self.permittivity_prior not in _PERMITTIVITY_PRIORS:
@@ -138,6 +159,16 @@ class Priors:
         _check_positive_finite("time_zero_sd", self.time_zero_sd)
         if self.noise_scale_sd is not None:
             _check_positive_finite("noise_scale_sd", self.noise_scale_sd)
+        for name in ("conductivity_min", "conductivity_max"):
+            _check_positive_finite(name, getattr(self, name))
+        if not self.conductivity_min < self.conductivity_max:
+            msg = (
+                f"Priors: conductivity bounds ({self.conductivity_min!r}, "
+                f"{self.conductivity_max!r}) mS/m are not increasing; expected min < max"
+            )
+            raise InputError(msg)
+        if self.amplitude_noise_scale_sd is not None:
+            _check_positive_finite("amplitude_noise_scale_sd", self.amplitude_noise_scale_sd)
 
     # --- construction and serialisation ----------------------------------------
 
@@ -161,6 +192,11 @@ class Priors:
     def sample_noise_scale(self) -> bool:
         """True when the pick-noise scale is a free parameter."""
         return self.noise_scale_sd is not None
+
+    @property
+    def sample_amplitude_noise_scale(self) -> bool:
+        """True when the amplitude-noise scale is a free parameter (with amplitudes)."""
+        return self.amplitude_noise_scale_sd is not None
 
     def to_attrs(self) -> dict:
         """Return the priors as NetCDF-safe attributes (``prior_*`` keys, JSON for ``None``).
@@ -202,13 +238,21 @@ class Priors:
             if self.noise_scale_sd is None
             else f"log-normal, median 1, log-sd {self.noise_scale_sd:g}"
         )
+        amp = (
+            "fixed at 1"
+            if self.amplitude_noise_scale_sd is None
+            else f"log-normal, median 1, log-sd {self.amplitude_noise_scale_sd:g}"
+        )
         return (
             f"relative permittivity per layer: {self.permittivity_prior} on "
             f"[{self.permittivity_min:g}, {self.permittivity_max:g}]; "
             f"thickness per layer above the half-space: uniform on "
             f"[{self.min_thickness:g}, {self.max_thickness:g}] m; "
             f"time zero: normal, mean {t0}, sd {self.time_zero_sd:g} ns; "
-            f"pick-noise scale: {noise}"
+            f"pick-noise scale: {noise}; "
+            f"with amplitudes, conductivity per layer: log-uniform on "
+            f"[{self.conductivity_min:g}, {self.conductivity_max:g}] mS/m, "
+            f"amplitude-noise scale: {amp}"
         )
 
     # --- densities --------------------------------------------------------------
@@ -278,6 +322,26 @@ class Priors:
             lp = -0.5 * z * z - logs - math.log(self.noise_scale_sd) - 0.5 * _LOG_2PI
         return np.where(s > 0, lp, -np.inf)
 
+    def log_prob_conductivity(self, conductivity) -> np.ndarray:
+        """Log prior density of conductivity (mS/m, log-uniform), summed over the last axis."""
+        sig = np.asarray(conductivity, dtype=float)
+        lo, hi = self.conductivity_min, self.conductivity_max
+        inside = np.all((sig >= lo) & (sig <= hi), axis=-1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            lp = -np.sum(np.log(sig), axis=-1) - sig.shape[-1] * math.log(math.log(hi / lo))
+        return np.where(inside, lp, -np.inf)
+
+    def log_prob_amplitude_noise_scale(self, scale) -> np.ndarray:
+        """Log prior density of the amplitude-noise scale (log-normal, median 1)."""
+        s = np.asarray(scale, dtype=float)
+        if self.amplitude_noise_scale_sd is None:
+            return np.where(s == 1.0, 0.0, -np.inf)
+        sd = self.amplitude_noise_scale_sd
+        with np.errstate(divide="ignore", invalid="ignore"):
+            logs = np.log(s)
+            lp = -0.5 * (logs / sd) ** 2 - logs - math.log(sd) - 0.5 * _LOG_2PI
+        return np.where(s > 0, lp, -np.inf)
+
     def log_prob(self, params: Mapping, *, time_zero_mean: float) -> np.ndarray:
         """Joint log prior density in physical units, vectorised over leading axes.
 
@@ -285,7 +349,8 @@ class Priors:
         ----------
         params : mapping
             ``permittivity`` (..., n_layers), ``thickness`` (..., n_interfaces) m,
-            ``time_zero`` (...) ns and, optionally, ``noise_scale`` (...).
+            ``time_zero`` (...) ns and, optionally, ``noise_scale`` (...),
+            ``conductivity`` (..., n) mS/m and ``amplitude_noise_scale`` (...).
         time_zero_mean : float
             Resolved time-zero prior mean, ns (see :meth:`resolve_time_zero_mean`).
 
@@ -310,10 +375,20 @@ class Priors:
         lp = lp + self.log_prob_time_zero(params["time_zero"], time_zero_mean=time_zero_mean)
         if "noise_scale" in params and self.noise_scale_sd is not None:
             lp = lp + self.log_prob_noise_scale(params["noise_scale"])
+        if "conductivity" in params:
+            lp = lp + self.log_prob_conductivity(params["conductivity"])
+        if "amplitude_noise_scale" in params and self.amplitude_noise_scale_sd is not None:
+            lp = lp + self.log_prob_amplitude_noise_scale(params["amplitude_noise_scale"])
         return lp
 
     def sample(
-        self, n: int, *, n_interfaces: int, rng: np.random.Generator, time_zero_mean: float
+        self,
+        n: int,
+        *,
+        n_interfaces: int,
+        rng: np.random.Generator,
+        time_zero_mean: float,
+        amplitudes: bool = False,
     ) -> dict:
         """Draw ``n`` layered earths from the prior (for simulation-based calibration).
 
@@ -327,13 +402,18 @@ class Priors:
             Random generator.
         time_zero_mean : float
             Resolved time-zero prior mean, ns.
+        amplitudes : bool, optional
+            Also draw the parameters of the amplitude model (after the others,
+            so the travel-time draws do not depend on this switch).
 
         Returns
         -------
         dict
             ``permittivity`` (n, n_interfaces + 1), ``velocity`` m/ns,
             ``thickness`` (n, n_interfaces) m, ``time_zero`` (n,) ns,
-            ``noise_scale`` (n,) (ones when fixed).
+            ``noise_scale`` (n,) (ones when fixed); with ``amplitudes=True``
+            also ``conductivity`` (n, n_interfaces + 1) mS/m and
+            ``amplitude_noise_scale`` (n,).
         """
         from soilwave.wave import SPEED_OF_LIGHT
 
@@ -350,13 +430,22 @@ class Priors:
             noise = np.ones(n)
         else:
             noise = np.exp(rng.normal(0.0, self.noise_scale_sd, size=n))
-        return {
+        out = {
             "permittivity": eps,
             "velocity": SPEED_OF_LIGHT / np.sqrt(eps),
             "thickness": thickness,
             "time_zero": time_zero,
             "noise_scale": noise,
         }
+        if amplitudes:
+            sig_lo, sig_hi = math.log(self.conductivity_min), math.log(self.conductivity_max)
+            out["conductivity"] = np.exp(rng.uniform(sig_lo, sig_hi, size=(n, n_layers)))
+            if self.amplitude_noise_scale_sd is None:
+                out["amplitude_noise_scale"] = np.ones(n)
+            else:
+                sd = self.amplitude_noise_scale_sd
+                out["amplitude_noise_scale"] = np.exp(rng.normal(0.0, sd, size=n))
+        return out
 
 
 def _check_positive_finite(name: str, value) -> None:

@@ -9,7 +9,9 @@
     interface): ``permittivity`` (1), ``velocity`` (m/ns), ``thickness`` (m)
     and ``depth`` (m, bottom of each layer) — both NaN for the half-space,
     which has neither — plus ``time_zero`` (ns), ``noise_scale`` (1) and
-    ``log_posterior``.
+    ``log_posterior``. A joint travel-time and amplitude inversion adds
+    ``conductivity`` (mS/m, over ``layer``), ``amplitude_noise_scale`` (1)
+    and ``log_gain_<family>`` (natural-log gain of each wave family).
 ``diagnostics``
     dict: ``tau``, ``ess``, ``rhat`` (``xarray.DataArray`` over ``parameter``,
     the sampling coordinates), ``acceptance``, ``converged``, ``reason``,
@@ -41,7 +43,7 @@ import xarray as xr
 from soilwave.errors import FileFormatError, InputError, OutputExistsError, RangeWarning
 from soilwave.priors import Priors
 
-__all__ = ["QUANTILES", "InversionResult", "read_result"]
+__all__ = ["CONDUCTIVITY_CONSTRAINED_RATIO", "QUANTILES", "InversionResult", "read_result"]
 
 #: Quantiles reported by summaries: the central 68 % and 90 % intervals and the median.
 QUANTILES = (0.05, 0.16, 0.5, 0.84, 0.95)
@@ -68,7 +70,15 @@ _META = {
     "time_zero": ("ns", "time-zero shift added to every pick"),
     "noise_scale": ("1", "scale factor on the pick uncertainties"),
     "water_content": ("1", "volumetric water content"),
+    "conductivity": ("mS/m", "electrical conductivity"),
+    "attenuation": ("dB/m", "amplitude attenuation at the antenna frequency"),
+    "amplitude_noise_scale": ("1", "scale factor on the log-amplitude uncertainties"),
 }
+
+#: A layer's conductivity counts as constrained by the data when the central 90 %
+#: interval of its posterior (in ln sigma) is narrower than this fraction of the
+#: prior's (our choice: half the prior width).
+CONDUCTIVITY_CONSTRAINED_RATIO = 0.5
 
 
 def _quantile_stats(draws: np.ndarray, name: str, dim: str | None, coord) -> dict:
@@ -233,7 +243,11 @@ class InversionResult:
             ``depth``; per layer: ``layer_permittivity``, ``layer_velocity``,
             ``layer_thickness``, ``layer_depth`` (NaN for the half-space) with
             their ``_mean`` and ``_sd``; ``time_zero`` and ``noise_scale``
-            quantiles.
+            quantiles. With conductivity (joint amplitude inversion) also
+            ``conductivity`` on ``(quantile, depth)``, ``layer_conductivity``
+            and ``layer_attenuation`` (dB/m at the antenna frequency) per
+            layer with ``_mean``/``_sd``, and the per-layer flags of
+            :meth:`conductivity_constraint`.
         """
         if depth is None and "summary" in self._stored:
             return self._stored["summary"].copy()
@@ -249,6 +263,24 @@ class InversionResult:
         for name in ("time_zero", "noise_scale"):
             stats = _quantile_stats(s[name].values, name, None, None)
             data[name] = stats[name]
+        note_sigma = None
+        if "conductivity" in s:
+            sig = s["conductivity"].values
+            data.update(_quantile_stats(self._profile(sig, depth), "conductivity", "depth", depth))
+            data.update(_quantile_stats(sig, "layer_conductivity", "layer", None))
+            freq = s.attrs.get("amplitude_frequency_mhz")
+            if freq is not None:
+                from soilwave.wave import attenuation
+
+                att = attenuation(eps, sig, float(freq), unit="dB/m", low_loss=False)
+                data.update(_quantile_stats(np.asarray(att), "layer_attenuation", "layer", None))
+            for name, da in self.conductivity_constraint().data_vars.items():
+                data[name] = da.drop_vars("layer")
+            data["amplitude_noise_scale"] = _quantile_stats(
+                s["amplitude_noise_scale"].values, "amplitude_noise_scale", None, None
+            )["amplitude_noise_scale"]
+        else:
+            note_sigma = "conductivity not estimated: the picks carry no usable amplitudes"
         out = xr.Dataset(data, coords=_coords(depth, s["layer"].values))
         out.attrs = {
             "title": "soilwave layered-earth inversion: posterior summary",
@@ -258,7 +290,77 @@ class InversionResult:
             ),
             "history": self.samples.attrs.get("history", ""),
         }
+        if note_sigma is not None:
+            out.attrs["conductivity_note"] = note_sigma
         return out
+
+    def conductivity_constraint(self) -> xr.Dataset:
+        """Which layers' conductivity the amplitudes constrain.
+
+        For each layer, ``conductivity_width_ratio`` is the width of the
+        central 90 % posterior interval of ``ln sigma`` over the prior's
+        (``0.9 ln(max / min)`` for the log-uniform prior); a layer is
+        ``conductivity_constrained`` when the ratio is below
+        :data:`CONDUCTIVITY_CONSTRAINED_RATIO` (0.5). An upper bound alone
+        (a nearly lossless layer whose posterior piles up at the prior's low
+        end) counts as a constraint. Layers no amplitude ray reaches keep
+        their prior, with a ratio near 1.
+
+        Returns
+        -------
+        xarray.Dataset
+            ``conductivity_width_ratio`` (layer) and ``conductivity_constrained``
+            (layer, 1 = constrained, 0 = the posterior stays near the prior).
+
+        Raises
+        ------
+        InputError
+            When the result has no conductivity (no amplitudes were inverted).
+        """
+        s = self.samples
+        if "conductivity" not in s:
+            msg = (
+                "this result has no conductivity: the picks carried no usable amplitudes "
+                "(auto_pick fills the 'amplitude' column)"
+            )
+            raise InputError(msg)
+        logs = np.log(s["conductivity"].values)
+        lo, hi = np.quantile(logs, [0.05, 0.95], axis=0)
+        p = self.priors
+        prior_width = 0.9 * np.log(p.conductivity_max / p.conductivity_min)
+        ratio = (hi - lo) / prior_width
+        layer = s["layer"].values
+        coords = {"layer": ("layer", layer, {"units": "1", "long_name": "layer number (1 = top)"})}
+        return xr.Dataset(
+            {
+                "conductivity_width_ratio": (
+                    "layer",
+                    ratio,
+                    {
+                        "units": "1",
+                        "long_name": (
+                            "width of the 90 % posterior interval of ln(conductivity) over "
+                            "the prior's"
+                        ),
+                    },
+                ),
+                "conductivity_constrained": (
+                    "layer",
+                    (ratio < CONDUCTIVITY_CONSTRAINED_RATIO).astype(np.int8),
+                    {
+                        "units": "1",
+                        "long_name": "conductivity constrained by the amplitudes",
+                        "flag_values": np.array([0, 1], dtype=np.int8),
+                        "flag_meanings": "near_prior constrained",
+                        "comment": (
+                            f"constrained when conductivity_width_ratio < "
+                            f"{CONDUCTIVITY_CONSTRAINED_RATIO:g}"
+                        ),
+                    },
+                ),
+            },
+            coords=coords,
+        )
 
     def water_content(self, model=None, *, depth=None) -> xr.Dataset:
         """Posterior volumetric water content per layer and on a depth grid.

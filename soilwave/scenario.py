@@ -177,7 +177,7 @@ def _cmp_gather(truth: DemoTruth, hours: float, rng: np.random.Generator):
         n_samples=700,
         frequency_mhz=truth.frequency_mhz,
         t0_ns=-5.0,
-        noise=0.004,
+        noise=0.0015,
         rng=rng,
         geometry="CMP",
     )

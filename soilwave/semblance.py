@@ -51,8 +51,9 @@ import xarray as xr
 from scipy import ndimage
 
 from soilwave.errors import InputError
-from soilwave.gather import history_line, sample_interval, validate_gather
+from soilwave.gather import sample_interval, validate_gather
 from soilwave.layered import dix_interval_velocity
+from soilwave.provenance import history_line
 from soilwave.wave import SPEED_OF_LIGHT
 
 __all__ = [

@@ -31,7 +31,9 @@ normal around that survey's air-wave estimate with sd ``time_zero_sd``
 ``(ln eps, ln tau, t0, ln s)`` with ``tau = 2 L sqrt(eps_wet) / c`` the vertical
 two-way time through the wet layer, and adds the log Jacobian
 ``sum ln eps + sum ln L + ln s`` so the priors stay those of the physical
-quantities (the parameterisation of :mod:`soilwave.posterior`).
+quantities (the parameterisation of :mod:`soilwave.posterior`). The joint
+posterior is sampled with :func:`soilwave.sampling.run_emcee`, started around
+a least-squares fit of the same model.
 
 Products
 --------
@@ -105,9 +107,9 @@ import xarray as xr
 from scipy.optimize import least_squares
 
 from soilwave.errors import InputError, OutputExistsError, SoilwaveWarning
-from soilwave.infiltration_fit import _run_ensemble
 from soilwave.priors import Priors
 from soilwave.provenance import append_history
+from soilwave.sampling import run_emcee
 from soilwave.surveys import (
     check_survey_set,
     survey_picks,
@@ -486,10 +488,10 @@ def track_front(
         scale = np.concatenate([scale, [0.5 / math.sqrt(max(post.n_obs, 1))]])
     ss_seed = np.random.SeedSequence(seed)
     seed_sampler, seed_petro = (int(c.generate_state(1)[0]) for c in ss_seed.spawn(2))
-    samples, _lp, diag = _run_ensemble(
+    run = run_emcee(
         post,
         x0,
-        0.3 * scale,
+        np.diag((0.3 * scale) ** 2),
         names=post.names,
         seed=seed_sampler,
         n_walkers=32 if n_walkers is None else n_walkers,
@@ -497,6 +499,7 @@ def track_front(
         tau_factor=tau_factor,
         progress=progress,
     )
+    samples, diag = run.samples, run.diagnostics
     if samples.shape[0] > n_samples:
         keep = np.round(np.linspace(0, samples.shape[0] - 1, int(n_samples))).astype(int)
         samples = samples[keep]

@@ -11,8 +11,8 @@ import pytest
 from scipy import constants
 
 import soilwave as sw
-from soilwave.autopick import _pick_sigma
 from soilwave.errors import InputError
+from soilwave.firstbreaks import _pick_sigma
 from soilwave.gather import gather_from_array
 
 C = constants.c * 1e-9  # m/ns, CODATA
@@ -310,7 +310,8 @@ def test_ground_wave_tail_is_not_picked_as_a_reflection():
     # include that tail (module notes), so no picks come out.
     import xarray as xr
 
-    from soilwave.autopick import _first_break_picks, _track_events
+    from soilwave.firstbreaks import _first_break_picks
+    from soilwave.reflection_picks import _track_events
 
     model = {"permittivity": [6.7], "thickness": [], "conductivity": [6.0]}
     n_events = 0
