@@ -194,7 +194,8 @@ from soilwave.processing import (  # noqa: E402
     remove_background,
     time_zero_correction,
 )
-from soilwave.synthetic import bowl_depth, synthetic_gather, synthetic_profile  # noqa: E402
+from soilwave.synthetic import synthetic_gather  # noqa: E402
+from soilwave.synthetic_profile import bowl_depth, synthetic_profile  # noqa: E402
 from soilwave.wavelets import ricker  # noqa: E402
 
 __all__ += [

@@ -10,10 +10,12 @@ orchestrates three steps, each documented in its own module:
    everything above the ground wave muted; its maxima are the candidate
    reflections ``(t0, V_rms)``.
 3. :mod:`soilwave.reflection_picks`: every candidate is followed across
-   offsets on its main lobe (or picked on partial stacks when weak). The
-   first ``max_interfaces`` events in time are numbered 1, 2, ... (the
-   inversion numbers interfaces from the top, so a deeper event never takes
-   the place of a shallower one).
+   offsets on its main lobe (or picked on partial stacks when weak) and
+   stopped where its wavelet changes from the near-offset one (post-critical
+   reflections beyond the critical distance under a faster layer, or the
+   tails of the direct waves). The first ``max_interfaces`` events in time
+   are numbered 1, 2, ... (the inversion numbers interfaces from the top, so
+   a deeper event never takes the place of a shallower one).
 
 Every pick sits on the main lobe (largest extremum) of its arrival, so all
 phases refer to the same point of the wavelet. With ``align_air=True`` the
@@ -97,13 +99,17 @@ def auto_pick(
     xarray.Dataset
         Pick table with phases ``air``, ``ground`` and ``reflection``
         (interfaces 1, 2, ... in time order), ``sigma`` from the SNR and
-        period (module notes), ``amplitude`` (envelope) and ``amplitude_sigma``
-        (noise level, divided by ``sqrt(n)`` for picks on partial stacks of
-        ``n`` traces). Attributes add ``time_shift_ns``, ``ground_velocity``,
+        period (:mod:`soilwave.firstbreaks`; for reflections the noise level
+        includes the air- and ground-wave tails, :mod:`soilwave.reflection_picks`),
+        ``amplitude`` (envelope) and ``amplitude_sigma`` (noise level, divided
+        by ``sqrt(n)`` for picks on partial stacks of ``n`` traces).
+        Attributes add ``time_shift_ns``, ``ground_velocity``,
         ``noise_level``, ``period_ns``, the semblance maxima used
         (``reflection_t0_ns``, ``reflection_v_rms``) and, per interface, the
         traces stacked per pick (``reflection_traces_per_pick``, 1 where the
-        event was followed trace by trace).
+        event was followed trace by trace) and the offset where the wavelet
+        changed and picking stopped (``reflection_wavelet_change_offset_m``,
+        m; NaN where it did not change).
 
     Examples
     --------
@@ -137,7 +143,7 @@ def auto_pick(
         raise InputError(msg)
     shift = fb["air"]["shift"] if align_air else 0.0
     events = []
-    t0s, vs, n_stack = [], [], []
+    t0s, vs, n_stack, changed = [], [], [], []
     if max_interfaces > 0 and fb["ground"]["found"]:
         muted = _mute_above(data, x, t, fb, period)
         gm = g.copy(data=muted)
@@ -167,12 +173,14 @@ def auto_pick(
         t0s = [e["t0"] - shift for e in events]
         vs = [e["v_rms"] for e in events]
         n_stack = [e["n_stack"] for e in events]
+        changed = [e.get("change_offset", np.nan) for e in events]
     rows = _table_rows(events, fb, period, shift)
     picks = _to_table(rows, g, fb["noise"])
     picks.attrs.update(_diagnostics(fb, period, shift))
     picks.attrs["reflection_t0_ns"] = np.asarray(t0s, dtype=float)
     picks.attrs["reflection_v_rms"] = np.asarray(vs, dtype=float)
     picks.attrs["reflection_traces_per_pick"] = np.asarray(n_stack, dtype=int)
+    picks.attrs["reflection_wavelet_change_offset_m"] = np.asarray(changed, dtype=float)
     picks.attrs["history"] = _with_step(
         g,
         picks,

@@ -204,8 +204,9 @@ def penetration_depth(
     noise_level : float
         Noise amplitude (1 sigma), in the unit of ``source_amplitude``
         (e.g. the ``amplitude_sigma`` of picks from :func:`soilwave.auto_pick`).
-    source_amplitude : float, optional
-        ``S`` above (default 1).
+    source_amplitude : float, array_like or xarray.DataArray, optional
+        ``S`` above (default 1); may vary per draw, e.g.
+        ``numpy.exp(samples["log_gain_reflection"])`` of a joint inversion.
     reflection_coefficient : float, optional
         ``|R_ref|`` of the reference reflector, between 0 and 1 (default 0.1,
         a weak soil contrast such as permittivity 9 over 13.4).
@@ -229,7 +230,11 @@ def penetration_depth(
     """
     f = _check_positive(frequency_mhz, "frequency_mhz", "MHz")
     noise = _check_positive(noise_level, "noise_level", "amplitude units")
-    src = _check_positive(source_amplitude, "source_amplitude", "amplitude units")
+    src_in = source_amplitude
+    if not isinstance(src_in, xr.DataArray):
+        src_in = _positive_array(src_in, "source_amplitude", "amplitude units")
+    else:
+        _positive_array(src_in.values, "source_amplitude", "amplitude units")
     r_ref = float(reflection_coefficient)
     if not (0.0 < r_ref <= 1.0):
         msg = (
@@ -237,15 +242,15 @@ def penetration_depth(
             f"got {reflection_coefficient!r}"
         )
         raise InputError(msg)
-    opts = {"noise": noise, "src": src, "r_ref": r_ref, "f": f, "low_loss": low_loss}
-    if not _is_xr(permittivity, conductivity, thickness):
+    opts = {"noise": noise, "r_ref": r_ref, "f": f, "low_loss": low_loss}
+    if not _is_xr(permittivity, conductivity, thickness, src_in):
         if quantiles is not None:
             msg = "quantiles need DataArray inputs with a 'sample' dimension"
             raise InputError(msg)
         eps = _layers(permittivity, "permittivity")
         sig = _layers(conductivity, "conductivity")
         h = _thickness(thickness, eps.shape[-1])
-        return _out(_penetration_kernel(eps, sig, h, **opts))
+        return _out(_penetration_kernel(eps, sig, h, src=src_in, **opts))
     eps, sig = (
         _as_da(v, name)
         for v, name in ((permittivity, "permittivity"), (conductivity, "conductivity"))
@@ -270,7 +275,11 @@ def penetration_depth(
             raise InputError(msg)
         hd = hd.broadcast_like(template).transpose(*other, hdim)
         h = _thickness(hd.values, n_l)
-    depth = _penetration_kernel(eps.values, sig.values, h, **opts)
+    if isinstance(src_in, xr.DataArray):
+        src = src_in.broadcast_like(template).transpose(*other).values
+    else:
+        src = np.broadcast_to(src_in, template.shape)
+    depth = _penetration_kernel(eps.values, sig.values, h, src=src, **opts)
     da = xr.DataArray(depth, dims=template.dims, coords=template.coords)
     return _finish(
         da,
@@ -282,7 +291,9 @@ def penetration_depth(
             "assumptions": _PENETRATION_NOTE,
             "reference_reflection_coefficient": r_ref,
             "noise_level": noise,
-            "source_amplitude": src,
+            "source_amplitude": (
+                float(src_in) if np.ndim(src_in) == 0 else "varies (one value per draw)"
+            ),
         },
     )
 
@@ -467,6 +478,20 @@ def _first_bad(arr, ok):
     return float(arr[idx]), where
 
 
+def _positive_array(value, name, unit) -> np.ndarray:
+    try:
+        arr = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        msg = f"{name} must be a number or array of numbers ({unit}); got {value!r}"
+        raise InputError(msg) from None
+    ok = np.isfinite(arr) & (arr > 0)
+    if not np.all(ok):
+        val, where = _first_bad(arr, ok)
+        msg = f"{name} must be finite and > 0 ({unit}); got {val!r}{where}"
+        raise InputError(msg)
+    return arr
+
+
 def _nonneg(value, name, unit) -> np.ndarray:
     arr = np.asarray(value, dtype=float)
     ok = np.isfinite(arr) & (arr >= 0)
@@ -540,14 +565,16 @@ def _thickness(value, n_layers) -> np.ndarray:
 
 def _penetration_kernel(eps, sig, h, *, noise, src, r_ref, f, low_loss):
     """Vectorised root of ``log A(z) = log noise`` (see :func:`penetration_depth`)."""
+    src = np.asarray(src, dtype=float)
     try:
-        batch = np.broadcast_shapes(eps.shape[:-1], sig.shape[:-1], h.shape[:-1])
+        batch = np.broadcast_shapes(eps.shape[:-1], sig.shape[:-1], h.shape[:-1], src.shape)
     except ValueError:
         msg = (
-            f"batch shapes of permittivity {eps.shape}, conductivity {sig.shape} and "
-            f"thickness {h.shape} do not broadcast"
+            f"batch shapes of permittivity {eps.shape}, conductivity {sig.shape}, "
+            f"thickness {h.shape} and source_amplitude {src.shape} do not broadcast"
         )
         raise InputError(msg) from None
+    src = np.broadcast_to(src, batch)
     n_l = eps.shape[-1]
     if sig.shape[-1] != n_l:
         msg = f"conductivity has {sig.shape[-1]} layer(s); permittivity has {n_l}"

@@ -94,11 +94,12 @@ def _prepare(gather, func, period_ns, method):
 
 def _first_break_picks(data, x, t, dt, period, method, min_snr):
     """Air and ground picks (numpy); returns a dict of arrays and fitted lines."""
-    env = np.abs(signal.hilbert(data, axis=-1))
+    analytic = signal.hilbert(data, axis=-1)
+    env = np.abs(analytic)
     air = _air_wave(data, x, t, dt, period, method, min_snr)
     noise = _noise_level(data, x, t, period, air["shift"] if air["found"] else None)
     ground = _ground_wave(data, x, t, dt, period, method, air, noise)
-    out = {"air": air, "ground": ground, "noise": noise, "env": env}
+    out = {"air": air, "ground": ground, "noise": noise, "env": env, "analytic": analytic}
     if not air["found"]:
         return out
     # drop air and ground picks where the two arrivals are closer than a period
@@ -201,13 +202,14 @@ def _table_rows(events, fb, period, shift):
     cols = {k: [] for k in keys}
     noise = fb["noise"]
 
-    def add(x, tt, amp, phase, interface, n_stack=1):
+    def add(x, tt, amp, phase, interface, n_stack=1, timing_level=None, sigma_min=0.0):
         level = noise / np.sqrt(n_stack)
         cols["offset"].append(x)
         cols["time"].append(tt - shift)
         cols["phase"].append(np.full(x.size, phase))
         cols["interface"].append(np.full(x.size, interface))
-        cols["sigma"].append(_pick_sigma(amp, level, period))
+        timing = level if timing_level is None else timing_level
+        cols["sigma"].append(np.maximum(_pick_sigma(amp, timing, period), sigma_min))
         cols["amplitude"].append(amp)
         cols["amplitude_sigma"].append(np.full(x.size, level))
 
@@ -217,7 +219,16 @@ def _table_rows(events, fb, period, shift):
             ok = ph["ok"]
             add(ph["x"][ok], ph["time"][ok], ph["amplitude"][ok], phase, 0)
     for k, ev in enumerate(events, start=1):
-        add(ev["x"], ev["time"], ev["amplitude"], "reflection", k, ev["n_stack"])
+        add(
+            ev["x"],
+            ev["time"],
+            ev["amplitude"],
+            "reflection",
+            k,
+            ev["n_stack"],
+            ev.get("level"),
+            ev.get("sigma_min", 0.0),
+        )
     return cols
 
 

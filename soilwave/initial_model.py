@@ -45,15 +45,21 @@ _MARGIN = 1e-3
 
 def _weighted_line(x, y, w, *, through_origin: bool):
     """Weighted least squares ``y = a + b x``; returns ``(a, b)`` or None."""
-    if through_origin:
-        den = np.sum(w * x * x)
-        if den <= 0:
+    with np.errstate(over="ignore", invalid="ignore"):
+        if through_origin:
+            den = np.sum(w * x * x)
+            b = np.sum(w * x * y) / den if den > 0 else np.nan
+            return (0.0, float(b)) if np.isfinite(b) else None
+        if np.unique(x).size < 2:
             return None
-        return 0.0, float(np.sum(w * x * y) / den)
-    if np.unique(x).size < 2:
+        A = np.stack([np.ones_like(x), x], axis=1) * np.sqrt(w)[:, None]
+        rhs = y * np.sqrt(w)
+    if not (np.all(np.isfinite(A)) and np.all(np.isfinite(rhs))):
+        return None  # weights overflow (sigmas near zero): no usable line
+    try:
+        coef, *_ = np.linalg.lstsq(A, rhs, rcond=None)
+    except np.linalg.LinAlgError:
         return None
-    A = np.stack([np.ones_like(x), x], axis=1) * np.sqrt(w)[:, None]
-    coef, *_ = np.linalg.lstsq(A, y * np.sqrt(w), rcond=None)
     return float(coef[0]), float(coef[1])
 
 

@@ -56,14 +56,26 @@ one line per pick, comma separated::
 
 Checks (:func:`validate_picks`, run by every function here): finite numbers,
 offsets >= 0, sigmas > 0, known phases, an interface >= 1 for reflections and
-refractions and 0 for air and ground picks, no pick implying a relative
-permittivity below 1 (a ground wave, reflection or refraction earlier than
-the air-wave time ``x / c``, or a ground wave earlier than the air-wave pick
-at the same offset, each by more than :data:`CONSISTENCY_SIGMAS` combined
-standard deviations), and no reflection earlier than the ground-wave pick at
-the same offset by that margin. Same-offset comparisons are made within one
-survey time and position. Picks repeating an offset, phase and interface give
-a :class:`~soilwave.errors.SoilwaveWarning`.
+refractions and 0 for air and ground picks, no reflection earlier than the
+ground-wave pick at the same offset by more than :data:`CONSISTENCY_SIGMAS`
+combined standard deviations, and no pick implying a relative permittivity
+below 1: a ground wave, reflection or refraction must not arrive before the
+air wave of its own survey (same survey time and position). Pick times
+include the survey's time-zero shift, so the air wave they are compared with
+is taken from the same table:
+
+* the air-wave pick at the same offset, when there is one;
+* otherwise the air-wave line ``t = x / c + t0`` through the survey's air
+  picks (slope fixed by the speed of light ``c``, ``t0`` the
+  inverse-variance weighted mean of ``t_air - x / c``, its standard error
+  combined with the pick's sigma);
+* only when the survey has no air picks, ``x / c`` itself, with a generous
+  extra allowance :data:`UNKNOWN_TIME_ZERO_NS` for the unknown time zero.
+
+A pick is rejected when it is earlier than that reference by more than
+:data:`CONSISTENCY_SIGMAS` combined standard deviations (plus the allowance).
+Picks repeating an offset, phase and interface give a
+:class:`~soilwave.errors.SoilwaveWarning`.
 """
 
 from __future__ import annotations
@@ -79,13 +91,21 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from soilwave.errors import OutputExistsError, PickTableError, SoilwaveWarning, location
+from soilwave.errors import (
+    FileFormatError,
+    InputError,
+    OutputExistsError,
+    PickTableError,
+    SoilwaveWarning,
+    location,
+)
 from soilwave.traveltime import C_M_PER_NS
 
 __all__ = [
     "CONSISTENCY_SIGMAS",
     "DEFAULT_SIGMA_FRACTION",
     "PHASES",
+    "UNKNOWN_TIME_ZERO_NS",
     "drop_picks",
     "edit_pick",
     "make_picks",
@@ -105,6 +125,14 @@ DEFAULT_SIGMA_FRACTION = 0.1
 #: Margin, in combined standard deviations, before an arrival order that implies
 #: a permittivity below 1 or a reflection before the ground wave is an error.
 CONSISTENCY_SIGMAS = 3.0
+
+#: Extra allowance, ns, for an unknown time zero when a survey has no air-wave
+#: picks: a ground, reflection or refraction pick is rejected only when it is
+#: earlier than ``x / c`` by more than this plus :data:`CONSISTENCY_SIGMAS`
+#: sigma. It is the shift of a time zero set on the air-wave first break of a
+#: trace 3 m from the transmitter (3 m / c = 10.0 ns, derived), a generous
+#: bound for the nearest offsets of usual multi-offset surveys (common practice).
+UNKNOWN_TIME_ZERO_NS = 3.0 / C_M_PER_NS
 
 _NEEDS_INTERFACE = ("reflection", "refraction")
 
@@ -283,46 +311,90 @@ def _groups(cols: dict) -> np.ndarray:
     return label.ravel()
 
 
+def _air_reference(c: dict, group: np.ndarray, slow: np.ndarray):
+    """Earliest possible arrival of each subsurface pick: the air wave of its own survey.
+
+    Returns ``(t_ref, sd_ref, allowance, how)`` per pick: the air-wave time at
+    the pick's offset (ns), its standard deviation (ns), an extra allowance
+    for an unknown time zero (ns) and a phrase saying where ``t_ref`` came from.
+    """
+    x, t, s, ph = c["offset"], c["time"], c["sigma"], c["phase"]
+    n = x.size
+    t_ref = x / C_M_PER_NS
+    sd_ref = np.zeros(n)
+    allowance = np.full(n, UNKNOWN_TIME_ZERO_NS)
+    how = np.full(n, "the air wave x/c", dtype=object)
+    for g in np.unique(group):
+        in_g = group == g
+        air = in_g & (ph == "air")
+        if not air.any():
+            continue
+        # air-wave line t = x/c + t0 through the air picks (slope fixed by c),
+        # t0 their inverse-variance weighted mean of t - x/c
+        w = 1.0 / s[air] ** 2
+        t0 = float(np.sum(w * (t[air] - x[air] / C_M_PER_NS)) / np.sum(w))
+        n_air = int(air.sum())
+        t_ref[in_g] = x[in_g] / C_M_PER_NS + t0
+        sd_ref[in_g] = 1.0 / math.sqrt(float(np.sum(w)))
+        allowance[in_g] = 0.0
+        sign = "-" if t0 < 0 else "+"
+        how[in_g] = (
+            f"the air-wave line x/c {sign} {abs(t0):.3f} ns (time zero fitted to {n_air} "
+            f"air pick{'s' if n_air > 1 else ''})"
+        )
+        ia = np.flatnonzero(air)
+        for j in np.flatnonzero(in_g & slow):
+            same = ia[x[ia] == x[j]]
+            if same.size:
+                k = same[np.argmin(t[same])]
+                t_ref[j], sd_ref[j] = t[k], s[k]
+                how[j] = "the air-wave pick at the same offset"
+    return t_ref, sd_ref, allowance, how
+
+
 def _check_physics(c: dict, where: _Where) -> None:
     x, t, s, ph = c["offset"], c["time"], c["sigma"], c["phase"]
     k = CONSISTENCY_SIGMAS
-    t_air = x / C_M_PER_NS
-    # anything through the ground arriving before light in air would need eps < 1
+    group = _groups(c)
+    # anything through the ground arriving before the air wave would need eps < 1
     slow = np.isin(ph, ("ground", "reflection", "refraction"))
-    bad = slow & (t < t_air - k * s)
+    t_ref, sd_ref, allowance, how = _air_reference(c, group, slow)
+    bad = slow & (t < t_ref - allowance - k * np.hypot(s, sd_ref))
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        eps = (C_M_PER_NS * t[i] / x[i]) ** 2 if t[i] > 0 else 0.0
-        msg = (
-            f"{where(i, 'time')}: {ph[i]} pick at {float(t[i])!r} ns is earlier than the air "
-            f"wave x/c = {t_air[i]:.4f} ns at offset {float(x[i])!r} m (more than {k:g} sigma), "
-            f"implying a relative permittivity of about {eps:.3g} < 1; check time zero and the "
-            "phase"
-        )
+        head = f"{where(i, 'time')}: {ph[i]} pick at {float(t[i])!r} ns, offset {float(x[i])!r} m"
+        if allowance[i] > 0:
+            eps = (C_M_PER_NS * t[i] / x[i]) ** 2 if t[i] > 0 else 0.0
+            msg = (
+                f"{head}, is earlier than the air wave x/c = {t_ref[i]:.4f} ns by more than "
+                f"{k:g} sigma plus {allowance[i]:.1f} ns allowed for an unknown time zero "
+                "(no air picks to fix time zero); with time zero 0 it implies a relative "
+                f"permittivity of about {eps:.3g} < 1; check time zero and the phase, or add "
+                "the air-wave picks"
+            )
+        else:
+            msg = (
+                f"{head}, is earlier than {how[i]} at {t_ref[i]:.4f} ns by more than {k:g} "
+                "combined sigma (implies a relative permittivity below 1); expected the "
+                f"{ph[i]} wave to arrive after the air wave; check the phases and the air picks"
+            )
         raise PickTableError(msg)
-    group = _groups(c)
-    for first, second, what in (
-        ("air", "ground", "the air-wave pick (implies a relative permittivity below 1)"),
-        ("ground", "reflection", "the ground-wave pick"),
-    ):
-        ia = np.flatnonzero(ph == first)
-        ib = np.flatnonzero(ph == second)
-        if ia.size == 0 or ib.size == 0:
+    ia = np.flatnonzero(ph == "ground")
+    ib = np.flatnonzero(ph == "reflection")
+    for j in ib if ia.size else ():
+        same = ia[(x[ia] == x[j]) & (group[ia] == group[j])]
+        if same.size == 0:
             continue
-        for j in ib:
-            same = ia[(x[ia] == x[j]) & (group[ia] == group[j])]
-            if same.size == 0:
-                continue
-            ref_t = t[same].min()
-            ref_s = s[same][np.argmin(t[same])]
-            if t[j] < ref_t - k * math.hypot(s[j], ref_s):
-                msg = (
-                    f"{where(int(j), 'time')}: {second} pick at {float(t[j])!r} ns is earlier "
-                    f"than {what} at {float(ref_t)!r} ns, offset {float(x[j])!r} m, by more than "
-                    f"{k:g} combined sigma; expected the {second} wave to arrive after the "
-                    f"{first} wave"
-                )
-                raise PickTableError(msg)
+        ref_t = t[same].min()
+        ref_s = s[same][np.argmin(t[same])]
+        if t[j] < ref_t - k * math.hypot(s[j], ref_s):
+            msg = (
+                f"{where(int(j), 'time')}: reflection pick at {float(t[j])!r} ns is earlier "
+                f"than the ground-wave pick at {float(ref_t)!r} ns, offset {float(x[j])!r} m, "
+                f"by more than {k:g} combined sigma; expected the reflection to arrive after "
+                "the ground wave"
+            )
+            raise PickTableError(msg)
 
 
 def _warn_duplicates(c: dict, where: _Where) -> None:
@@ -562,7 +634,12 @@ def read_picks(path, *, frequency_mhz=None) -> xr.Dataset:
     Raises
     ------
     PickTableError
-        Naming the file, 1-based data row, column, the value and what is expected.
+        Naming the file, 1-based data row, column, the value and what is expected
+        (also for a file that is not UTF-8 text).
+    FileFormatError
+        The file does not exist, is a directory or cannot be read (naming the path).
+    InputError
+        ``path`` is not a path.
 
     Examples
     --------
@@ -572,12 +649,29 @@ def read_picks(path, *, frequency_mhz=None) -> xr.Dataset:
     >>> float(read_picks(f)["sigma"][0])
     0.2
     """
-    path = Path(path)
+    try:
+        path = Path(path)
+    except TypeError:
+        msg = f"pick table path {path!r} is not a file path; expected a str or os.PathLike"
+        raise InputError(msg) from None
     try:
         text = path.read_text(encoding="utf-8-sig")
     except UnicodeDecodeError as err:
-        msg = f"{path}: not a UTF-8 text file ({err.reason} at byte {err.start})"
+        msg = (
+            f"{path}: not a UTF-8 text file ({err.reason} at byte {err.start}); "
+            "expected a CSV pick table"
+        )
         raise PickTableError(msg) from None
+    except FileNotFoundError:
+        msg = f"{path}: no such file; expected a CSV pick table"
+        raise FileFormatError(msg) from None
+    except IsADirectoryError:
+        msg = f"{path}: is a directory; expected a CSV pick table file"
+        raise FileFormatError(msg) from None
+    except (OSError, ValueError) as err:  # permissions, device errors, NUL in the name
+        reason = getattr(err, "strerror", None) or str(err)
+        msg = f"{path}: cannot be read ({reason}); expected a readable CSV pick table"
+        raise FileFormatError(msg) from None
     lines = text.splitlines()
     attrs: dict = {}
     i = 0

@@ -1,7 +1,7 @@
 """Figures of repeat surveys: wetting front over time, water content over position and time.
 
 matplotlib only; every function draws on given axes (or new ones) and returns
-them, so figures can be combined and saved by the caller.
+the Figure, like the other ``soilwave.plot_*`` modules.
 
 Examples
 --------
@@ -13,8 +13,8 @@ Examples
 >>> d = np.array([[0, 0, 0, 0, 0], [0.15, 0.17, 0.18, 0.19, 0.21]])
 >>> front = xr.Dataset({"front_depth": (("time", "quantile"), d, {"units": "m"})},
 ...                    coords={"time": [0.0, 2.0], "quantile": q})
->>> ax = plot_front(front)
->>> ax.get_ylabel()
+>>> fig = plot_front(front)
+>>> fig.axes[0].get_ylabel()
 'front depth (m)'
 """
 

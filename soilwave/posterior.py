@@ -42,8 +42,8 @@ as a head wave under a slower layer) has zero likelihood.
 Amplitudes (joint inversion)
 ----------------------------
 When the picks carry amplitudes (column ``amplitude``, for air, ground and
-reflection picks; see :mod:`soilwave.amplitude` for the forward model), the
-posterior adds
+reflection picks, air and ground picks at zero offset excepted; see
+:mod:`soilwave.amplitude` for the forward model), the posterior adds
 
 ``log_conductivity`` (one per layer the amplitude rays cross)
     ``c_l = ln sigma_l`` (mS/m); the log-uniform prior of
@@ -347,7 +347,10 @@ def _amplitude_picks(picks, amplitudes, relative_error, floor, low_loss):
     phase = np.asarray(picks["phase"].values).astype(str)
     amp = np.asarray(picks["amplitude"].values, dtype=float)
     interface = np.asarray(picks["interface"].values)
+    offset = np.asarray(picks["offset"].values, dtype=float)
     use = np.isin(phase, AMPLITUDE_FAMILIES) & np.isfinite(amp)
+    # 1/x^2 spreading has no value at zero offset: such air/ground amplitudes are left out
+    use &= ~(np.isin(phase, ("air", "ground")) & (offset <= 0))
     bad = use & ~(amp > 0)
     if np.any(bad):
         i = int(np.flatnonzero(bad)[0])
@@ -382,7 +385,7 @@ def _amplitude_picks(picks, amplitudes, relative_error, floor, low_loss):
         rel[have] = a_sig[have] / amp[idx][have]
     error = np.sqrt(rel**2 + float(floor) ** 2)
     op = AmplitudeOperator(
-        np.asarray(picks["offset"].values, dtype=float)[idx],
+        offset[idx],
         phase[idx],
         interface[idx],
         frequency_mhz=picks.attrs["frequency_mhz"],

@@ -46,6 +46,20 @@ first breaks of :mod:`soilwave.firstbreaks` and the semblance maxima of
    least ``min_semblance``) is the detection; the stack test only drops
    events too weak to time (with ``min_semblance`` lowered well below its
    default, semblance maxima of noise can give single stacked picks).
+3. **Main lobe and wavelet changes** (:mod:`soilwave.wavelet_change`). An
+   event found on a side lobe is followed again on its main lobe; picking
+   stops where the wavelet changes from the event's near-offset wavelet:
+   beyond the critical distance under a faster layer (post-critical
+   reflections come out early) or where the tails of the direct waves
+   interfere. An event left with fewer than three picks cannot be checked;
+   their sigma is at least ``T / 4`` (the cautious end of the usual tenth to
+   quarter of a period, value from memory) instead of ``T / 10``.
+
+Pick uncertainty: as in :mod:`soilwave.firstbreaks`, ``sigma_t = max(T s /
+(2 pi A), T / 10)``, but with ``s = sqrt(sigma_n^2 + leak^2)``, the local
+noise level including the tails of the air and ground waves at the pick
+(for partial stacks of ``n`` traces ``s = sigma_n / sqrt(n)`` plus the mean
+``leak``): picks close behind a strong ground wave get a larger sigma.
 """
 
 from __future__ import annotations
@@ -57,6 +71,13 @@ from scipy import signal
 
 from soilwave.firstbreaks import _envelope_at, _extremum, _subsample
 from soilwave.wave import SPEED_OF_LIGHT
+from soilwave.wavelet_change import (
+    _MIN_TEST_PICKS,
+    _TEMPLATE_PICKS,
+    UNCHECKED_SIGMA_FRACTION,
+    _side_lobe_shift,
+    _wavelet_change,
+)
 
 __all__: list[str] = []
 
@@ -72,6 +93,7 @@ def _mute_above(data, x, t, fb, period):
 def _track_events(data, x, t, dt, period, fb, cand, min_snr, merge, max_gap, n_min):
     """Follow every candidate hyperbola; return accepted events (dicts)."""
     env = fb["env"]
+    analytic = fb["analytic"]
     noise = fb["noise"]
     shift = fb["air"]["shift"]
     air_line = x / SPEED_OF_LIGHT + shift
@@ -96,39 +118,80 @@ def _track_events(data, x, t, dt, period, fb, cand, min_snr, merge, max_gap, n_m
         start = [i for i in range(x.size) if clear(i, h[i])]
         if not start:
             continue
-        picks = _follow_event(
-            data, env, t, dt, period, h, start, clear, noise, leak, min_snr, max_gap
+        args = (data, env, t, dt, period, h, start, clear, noise, leak, min_snr, max_gap)
+        picks, sign = _follow_event(*args)
+        first = sorted(picks)[:_TEMPLATE_PICKS]
+        shift_lobe = _side_lobe_shift(
+            data[first], t[0], dt, np.array([picks[i] for i in first]), sign, period
         )
+        if shift_lobe != 0.0:
+            # the near-offset picks sit on a side lobe: follow the main lobe
+            lag = picks[first[0]] - h[first[0]] + shift_lobe
+            picks, sign = _follow_event(*args, lobe=(lag, -sign))
         if len(picks) >= n_min:
             idx = np.array(sorted(picks))
             tt = np.array([picks[i] for i in idx])
             amp = _envelope_at(env[idx], t, dt, tt)
-            ev = {"x": x[idx], "idx": idx, "time": tt, "amplitude": amp, "n_stack": 1}
+            level = np.array([np.hypot(noise, leak(i, ti)) for i, ti in zip(idx, tt, strict=True)])
+
+            def level_at(j, offsets, idx=idx, tt=tt):
+                return np.hypot(noise, [leak(idx[j], tt[j] + d) for d in offsets])
+
+            keep = _wavelet_change(
+                data[idx],
+                analytic[idx],
+                np.full(idx.size, t[0]),
+                dt,
+                tt,
+                sign,
+                period,
+                amp,
+                level_at,
+            )
+            ev = {
+                "x": x[idx[:keep]],
+                "idx": idx[:keep],
+                "time": tt[:keep],
+                "amplitude": amp[:keep],
+                "level": level[:keep],
+                "n_stack": 1,
+                "change_offset": float(x[idx[keep]]) if keep < idx.size else np.nan,
+            }
         else:
             # too weak to follow trace by trace: pick on partial stacks
             ev = _stacked_event(
                 data, x, t, dt, period, h, start, clear, noise, leak, min_snr, max_gap
             )
-        if ev is not None:
+        if ev is not None and ev["x"].size:
             ev.update(t0=float(t0c[k]), v_rms=float(vc[k]), semblance=float(sc[k]))
+            if ev["x"].size < _MIN_TEST_PICKS:
+                # too few picks to check the wavelet: the cautious sigma floor
+                ev["sigma_min"] = UNCHECKED_SIGMA_FRACTION * period
             events.append(ev)
     return _drop_duplicates(events, period)
 
 
-def _follow_event(data, env, t, dt, period, h, start, clear, noise, leak, min_snr, max_gap):
-    """Follow one hyperbola trace by trace from its first clear trace; {trace: time}."""
+def _follow_event(
+    data, env, t, dt, period, h, start, clear, noise, leak, min_snr, max_gap, lobe=None
+):
+    """Follow one hyperbola trace by trace from its first clear trace.
+
+    Returns ``({trace: time}, sign)`` with the polarity of the lobe followed.
+    ``lobe = (lag, sign)`` imposes the starting lobe (lag behind the
+    hyperbola, ns).
+    """
     half = max(1, round(0.25 * period / dt))
     i0 = start[0]
     # lobe and polarity from a partial stack of the first clear traces along
     # the hyperbola (more robust in noise than one trace)
-    lag_sign = _stack_lobe(data, t, h, start[:5], period, dt)
+    lag_sign = _stack_lobe(data, t, h, start[:5], period, dt) if lobe is None else lobe
     if lag_sign is None:
-        return {}
+        return {}, 0
     lag, sign = lag_sign
     c = round((h[i0] + lag - t[0]) / dt)
     ex = _extremum(data[i0], c - half, c + half, sign)
     if ex is None:
-        return {}
+        return {}, 0
     picks = {}
     tp = t[0] + ex[0] * dt
     if clear(i0, tp) and env[i0, round(ex[0])] >= min_snr * np.hypot(noise, leak(i0, tp)):
@@ -154,7 +217,7 @@ def _follow_event(data, env, t, dt, period, h, start, clear, noise, leak, min_sn
         gap = 0
         picks[i] = tp
         prev_i, prev_t = i, tp
-    return picks
+    return picks, sign
 
 
 def _stack_level(noise, leak, h, traces, lag):
@@ -167,8 +230,7 @@ def _leak_function(env, t, dt, period, noise, air, air_line, ground_line):
     """``leak(i, tt)``: envelope the air and ground waves of trace i leave at time tt.
 
     The wavelet's normalised envelope ``e(tau)`` is the median, over the five
-    strongest air-wave picks (among those recorded from three periods before
-    the lobe, if any), of the envelope before the main lobe (where
+    strongest air-wave picks (where recorded), of the envelope before the main lobe (where
     nothing but noise precedes the air wave; the noise's mean square envelope
     ``2 sigma_n^2`` removed) divided by its value at the lobe; it is taken as
     symmetric, ``e(tau) = e(-|tau|)``, and zero beyond three periods. On
@@ -181,10 +243,9 @@ def _leak_function(env, t, dt, period, noise, air, air_line, ground_line):
     if ok.size == 0:
         return lambda i, tt: 0.0
     amp = _envelope_at(env, t, dt, air["time"])
-    # prefer traces whose three periods before the air wave are recorded
-    whole = ok[air["time"][ok] - 3.0 * period >= t[0]]
-    pool = whole if whole.size else ok
-    top = pool[np.argsort(-amp[pool])[:5]]
+    # the strongest air waves measure the faint tail best; lags before a
+    # trace's first sample are NaN there (the other traces fill them)
+    top = ok[np.argsort(-amp[ok])[:5]]
     # the noise's own envelope (mean square 2 sigma_n^2) is removed; lags
     # before the record's start carry no information (NaN, then 0)
     rows = [
@@ -218,8 +279,13 @@ def _stack(data, t, h, traces, lags):
     return out
 
 
-def _stacked_event(data, x, t, dt, period, h, clear_idx, clear, noise, leak, min_snr, max_gap):
-    """Pick a weak event on partial stacks of neighbouring traces (module notes)."""
+def _stacked_event(
+    data, x, t, dt, period, h, clear_idx, clear, noise, leak, min_snr, max_gap, lobe=None
+):
+    """Pick a weak event on partial stacks of neighbouring traces (module notes).
+
+    ``lobe = (lag, sign)`` imposes the lobe (lag behind the hyperbola, ns).
+    """
     n_c = len(clear_idx)
     if n_c < 2:
         return None
@@ -227,11 +293,16 @@ def _stacked_event(data, x, t, dt, period, h, clear_idx, clear, noise, leak, min
     inner = np.abs(lags) <= period
     full = _stack(data, t, h, clear_idx, lags)
     env_full = np.abs(signal.hilbert(full))
-    ex = _extremum(np.where(inner, full, 0.0), 0, lags.size - 1)
-    if ex is None:
-        return None
-    k0 = round(ex[0])
-    sign = ex[1]
+    if lobe is None:
+        ex = _extremum(np.where(inner, full, 0.0), 0, lags.size - 1)
+        if ex is None:
+            return None
+        k0 = round(ex[0])
+        sign = ex[1]
+        start_lag = float(lags[k0] + _subsample(sign * full, k0) * dt)
+    else:
+        start_lag, sign = lobe
+        k0 = int(np.clip(round((start_lag - lags[0]) / dt), 0, lags.size - 1))
     snr_trace = env_full[k0] / (noise * n_c)  # mean amplitude per trace over noise
     if snr_trace * np.sqrt(n_c) < min_snr:
         return None
@@ -241,7 +312,7 @@ def _stacked_event(data, x, t, dt, period, h, clear_idx, clear, noise, leak, min
     if len(groups) > 1 and len(groups[-1]) < 0.5 * n_b:
         groups[-2] = groups[-2] + groups[-1]
         groups.pop()
-    prev_lag = float(lags[k0] + _subsample(sign * full, k0) * dt)
+    prev_lag = start_lag
     quarter = max(1, round(0.25 * period / dt))
     rows = []
     gap = 0
@@ -266,16 +337,69 @@ def _stacked_event(data, x, t, dt, period, h, clear_idx, clear, noise, leak, min
             continue
         gap = 0
         prev_lag = lag
-        rows.append((xc, tp, env[round(ex[0])] / len(grp), i_c, len(grp)))
+        n = len(grp)
+        level = _stack_level(noise, leak, h, grp, lag)
+        rows.append(
+            {
+                "x": xc,
+                "time": tp,
+                "amplitude": env[round(ex[0])] / n,
+                "idx": i_c,
+                "n": n,
+                "level": level / n,
+                "grp": grp,
+                "stack": st,
+                "lag": lag,
+            }
+        )
     if not rows:
         return None
-    n_stack = min(r[4] for r in rows)
+    col = {k: np.array([r[k] for r in rows]) for k in ("x", "time", "amplitude", "idx", "n")}
+    col["level"] = np.array([r["level"] for r in rows])
+    stacks = np.array([r["stack"] for r in rows]) / col["n"][:, None]
+    centres = np.array([r["lag"] for r in rows])
+    shift_lobe = _side_lobe_shift(stacks, lags[0], dt, centres, sign, period)
+    if lobe is None and shift_lobe != 0.0:
+        # the first groups sit on a side lobe: pick the main lobe instead
+        return _stacked_event(
+            data,
+            x,
+            t,
+            dt,
+            period,
+            h,
+            clear_idx,
+            clear,
+            noise,
+            leak,
+            min_snr,
+            max_gap,
+            lobe=(centres[0] + shift_lobe, -sign),
+        )
+    keep = _wavelet_change(
+        stacks,
+        signal.hilbert(stacks, axis=-1),
+        np.full(len(rows), lags[0]),
+        dt,
+        centres,
+        sign,
+        period,
+        col["amplitude"],
+        lambda j, offsets: (
+            np.array(
+                [_stack_level(noise, leak, h, rows[j]["grp"], rows[j]["lag"] + d) for d in offsets]
+            )
+            / rows[j]["n"]
+        ),
+    )
     return {
-        "x": np.array([r[0] for r in rows]),
-        "idx": np.array([r[3] for r in rows]),
-        "time": np.array([r[1] for r in rows]),
-        "amplitude": np.array([r[2] for r in rows]),
-        "n_stack": n_stack,
+        "x": col["x"][:keep],
+        "idx": col["idx"][:keep],
+        "time": col["time"][:keep],
+        "amplitude": col["amplitude"][:keep],
+        "level": col["level"][:keep],
+        "n_stack": int(col["n"][:keep].min()) if keep else int(col["n"].min()),
+        "change_offset": float(col["x"][keep]) if keep < len(rows) else np.nan,
     }
 
 

@@ -294,6 +294,61 @@ class InversionResult:
             out.attrs["conductivity_note"] = note_sigma
         return out
 
+    def penetration_depth(
+        self, *, noise_level=None, reflection_coefficient=0.1, quantiles=QUANTILES
+    ) -> xr.DataArray:
+        """Posterior penetration-depth estimate of a joint amplitude inversion.
+
+        Each posterior draw (permittivity, conductivity, thickness and the
+        reflection gain ``exp(log_gain_reflection)`` as source amplitude) goes
+        through :func:`soilwave.penetration_depth` at the antenna frequency;
+        see there for the assumptions (zero-offset reflection from a reference
+        reflector, spreading, attenuation, transmission losses).
+
+        Parameters
+        ----------
+        noise_level : float, optional
+            Noise amplitude (1 sigma) in the picks' amplitude unit; default the
+            pick table's ``noise_level`` attribute (set by :func:`soilwave.auto_pick`).
+        reflection_coefficient : float, optional
+            ``|R|`` of the reference reflector (default 0.1).
+        quantiles : sequence of float or None, optional
+            Posterior quantiles to return; ``None`` returns one depth per draw.
+
+        Returns
+        -------
+        xarray.DataArray
+            Depth, m, over ``quantile`` (or ``sample``).
+        """
+        from soilwave.conductivity import penetration_depth
+
+        s = self.samples
+        if "conductivity" not in s or "log_gain_reflection" not in s:
+            msg = (
+                "penetration_depth needs a joint inversion with reflection amplitudes "
+                "(samples 'conductivity' and 'log_gain_reflection')"
+            )
+            raise InputError(msg)
+        if noise_level is None:
+            noise_level = self.picks.attrs.get("noise_level")
+            if noise_level is None:
+                msg = (
+                    "the pick table has no 'noise_level' attribute; pass noise_level= "
+                    "(noise amplitude in the picks' amplitude unit)"
+                )
+                raise InputError(msg)
+        return penetration_depth(
+            s["permittivity"],
+            s["conductivity"],
+            s["thickness"],
+            frequency_mhz=float(s.attrs["amplitude_frequency_mhz"]),
+            noise_level=float(noise_level),
+            source_amplitude=np.exp(s["log_gain_reflection"]),
+            reflection_coefficient=reflection_coefficient,
+            low_loss=s.attrs.get("attenuation_model") == "low-loss",
+            quantiles=quantiles,
+        )
+
     def conductivity_constraint(self) -> xr.Dataset:
         """Which layers' conductivity the amplitudes constrain.
 
@@ -472,7 +527,8 @@ class InversionResult:
         """Short text table per layer: median and central 90 % interval.
 
         Columns: permittivity, thickness (m), depth of the bottom (m), water
-        content (m3/m3).
+        content (m3/m3) and, after a joint amplitude inversion, conductivity
+        (mS/m; "prior only" where the amplitudes do not constrain it).
         """
         s = self.summary()
         with warnings.catch_warnings():
@@ -486,17 +542,25 @@ class InversionResult:
             return f"{v[1]:{fmt}} [{v[0]:{fmt}}, {v[2]:{fmt}}]"
 
         head = ("layer", "permittivity", "thickness m", "depth m", "water content")
+        with_sigma = "layer_conductivity" in s
+        if with_sigma:
+            head = (*head, "conductivity mS/m")
         rows = [head]
         for layer in s["layer"].values:
-            rows.append(
-                (
-                    str(int(layer)),
-                    cell(s["layer_permittivity"], layer, ".2f"),
-                    cell(s["layer_thickness"], layer, ".3f"),
-                    cell(s["layer_depth"], layer, ".3f"),
-                    cell(wc["layer_water_content"], layer, ".3f"),
-                )
+            row = (
+                str(int(layer)),
+                cell(s["layer_permittivity"], layer, ".2f"),
+                cell(s["layer_thickness"], layer, ".3f"),
+                cell(s["layer_depth"], layer, ".3f"),
+                cell(wc["layer_water_content"], layer, ".3f"),
             )
+            if with_sigma:
+                constrained = int(s["conductivity_constrained"].sel(layer=layer)) == 1
+                row = (
+                    *row,
+                    cell(s["layer_conductivity"], layer, ".3g") if constrained else "prior only",
+                )
+            rows.append(row)
         widths = [max(len(r[i]) for r in rows) for i in range(len(head))]
         lines = ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)) for r in rows]
         lines.insert(1, "  ".join("-" * w for w in widths))

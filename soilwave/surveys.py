@@ -191,7 +191,7 @@ def _read_toml(path: Path) -> tuple[dict, list[dict]]:
         with open(path, "rb") as fh:
             doc = tomllib.load(fh)
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
-        msg = f"{path}: not valid UTF-8 TOML ({err})"
+        msg = f"{path}: not valid TOML ({err}); expected UTF-8 TOML text"
         raise FileFormatError(msg) from None
     head = doc.get("survey_set", {})
     if not isinstance(head, dict):

@@ -298,3 +298,17 @@ def test_bad_arguments_raise_input_errors():
         )
     with pytest.raises(InputError, match="offset"):
         air_wave_log_amplitude([0.0])
+
+
+def test_precomputed_rays_give_identical_results():
+    # rays traced once (as a joint travel-time model does) are reused exactly
+    x = np.array([0.5, 1.0, 2.0, 0.7, 1.8])
+    op = AmplitudeOperator(x, ["reflection"] * 5, [1, 1, 1, 2, 2], frequency_mhz=200.0)
+    rng = np.random.default_rng(6)
+    h = rng.uniform(0.3, 0.9, (7, 2))
+    eps = rng.uniform(4.0, 25.0, (7, 3))
+    sig = rng.uniform(1.0, 30.0, (7, 3))
+    v = C / np.sqrt(eps)
+    groups = op.reflection_groups()
+    rays = {k: sw.reflection_rays(x[idx], h, v, interface=k)[1] for k, idx in groups.items()}
+    np.testing.assert_array_equal(op(h, eps, sig, 0.0, rays=rays), op(h, eps, sig, 0.0))

@@ -22,7 +22,7 @@ import scipy.constants
 import xarray as xr
 
 import soilwave as sw
-from soilwave import batch as batch_mod
+from soilwave import batch_workers
 from soilwave.batch_store import BatchStore, read_batch_settings
 
 V1, V2, H1 = 0.10, 0.08, 0.6  # m/ns, m/ns, m
@@ -402,7 +402,7 @@ def test_priors_object_is_recorded_in_settings(tmp_path):
 
 def test_unreachable_scheduler_is_an_input_error(tmp_path, monkeypatch):
     pytest.importorskip("distributed")
-    monkeypatch.setattr(batch_mod, "SCHEDULER_TIMEOUT_S", 2)
+    monkeypatch.setattr(batch_workers, "SCHEDULER_TIMEOUT_S", 2)
     inp = make_pick_folder(tmp_path / "in", 1, corrupt=False)
     with pytest.raises(sw.InputError, match=r"cannot connect to the dask.*127\.0\.0\.1:9"):
         sw.run_batch(inp, tmp_path / "out", scheduler="tcp://127.0.0.1:9", progress=False)
@@ -413,12 +413,12 @@ def test_unreachable_scheduler_is_an_input_error(tmp_path, monkeypatch):
 
 def test_local_pool_workers_have_one_blas_thread():
     before = os.environ.get("OPENBLAS_NUM_THREADS")
-    pool = batch_mod._local_executor(1)
+    pool = batch_workers._local_executor(1)
     try:
-        values = [pool.submit(env_probe, k).result() for k in batch_mod.THREAD_ENV]
+        values = [pool.submit(env_probe, k).result() for k in batch_workers.THREAD_ENV]
     finally:
         pool.shutdown()
-    assert values == ["1"] * len(batch_mod.THREAD_ENV)
+    assert values == ["1"] * len(batch_workers.THREAD_ENV)
     assert os.environ.get("OPENBLAS_NUM_THREADS") == before  # the caller's env is untouched
 
 

@@ -33,8 +33,19 @@ from soilwave.priors import Priors
 FREQ = 250.0
 
 
-def simulate_picks(h, eps, sigma, *, offsets, interfaces, gains, rng, amp_noise=0.05,
-                   time_sigma=0.15, with_amplitude=None):
+def simulate_picks(
+    h,
+    eps,
+    sigma,
+    *,
+    offsets,
+    interfaces,
+    gains,
+    rng,
+    amp_noise=0.05,
+    time_sigma=0.15,
+    with_amplitude=None,
+):
     """Air, ground and reflection picks with times and amplitudes (see module docstring)."""
     x = np.asarray(offsets, float)
     ph = ["air"] * x.size + ["ground"] * x.size
@@ -49,8 +60,16 @@ def simulate_picks(h, eps, sigma, *, offsets, interfaces, gains, rng, amp_noise=
     if with_amplitude is not None:
         amp = np.where(np.isin(ph, with_amplitude), amp, np.nan)
     t = t + time_sigma * rng.standard_normal(t.size)
-    return sw.make_picks(xx, t, ph, interface=itf, sigma=time_sigma, frequency_mhz=FREQ,
-                         amplitude=amp, amplitude_sigma=amp_noise * amp)
+    return sw.make_picks(
+        xx,
+        t,
+        ph,
+        interface=itf,
+        sigma=time_sigma,
+        frequency_mhz=FREQ,
+        amplitude=amp,
+        amplitude_sigma=amp_noise * amp,
+    )
 
 
 # --- likelihood with integrated gains ----------------------------------------------------------
@@ -61,10 +80,16 @@ def test_marginal_likelihood_equals_numerical_integration_over_gains():
     x = np.array([0.6, 1.2, 2.0, 0.6, 1.5, 2.5, 0.3, 1.0, 2.2])
     ph = ["air"] * 3 + ["ground"] * 3 + ["reflection"] * 3
     op = sw.AmplitudeOperator(x, ph, [0] * 6 + [1] * 3, frequency_mhz=FREQ)
-    phys = {"thickness": np.array([[0.6]]), "permittivity": np.array([[7.0, 15.0]]),
-            "conductivity": np.array([[12.0]]), "amplitude_noise_scale": np.array([0.8])}
-    amp = np.exp(op(phys["thickness"], phys["permittivity"], [[12.0, 0.0]], [0.3, -0.2, 1.0])
-                 + 0.05 * rng.standard_normal(9))[0]
+    phys = {
+        "thickness": np.array([[0.6]]),
+        "permittivity": np.array([[7.0, 15.0]]),
+        "conductivity": np.array([[12.0]]),
+        "amplitude_noise_scale": np.array([0.8]),
+    }
+    amp = np.exp(
+        op(phys["thickness"], phys["permittivity"], [[12.0, 0.0]], [0.3, -0.2, 1.0])
+        + 0.05 * rng.standard_normal(9)
+    )[0]
     err = rng.uniform(0.03, 0.1, 9)
     term = AmplitudeLikelihood(op, amp, err, n_conductivity=1)
     got = term(phys)[0]
@@ -81,8 +106,7 @@ def test_marginal_likelihood_equals_numerical_integration_over_gains():
             return np.prod(stats.norm.pdf(y, mu + g, e))
 
         centre = np.sum((y - mu) / e**2) / np.sum(1 / e**2)
-        val, _ = integrate.quad(like, centre - 2.0, centre + 2.0, epsabs=0, epsrel=1e-11,
-                                limit=200)
+        val, _ = integrate.quad(like, centre - 2.0, centre + 2.0, epsabs=0, epsrel=1e-11, limit=200)
         total += math.log(val)
     assert got == pytest.approx(total, abs=1e-8)
 
@@ -90,8 +114,12 @@ def test_marginal_likelihood_equals_numerical_integration_over_gains():
 def test_gain_draws_follow_the_conditional_posterior():
     x = np.linspace(0.5, 2.5, 6)
     op = sw.AmplitudeOperator(x, ["ground"] * 6, [0] * 6, frequency_mhz=FREQ)
-    phys = {"thickness": np.zeros((1, 0)), "permittivity": np.array([[9.0]]),
-            "conductivity": np.array([[5.0]]), "amplitude_noise_scale": np.array([1.5])}
+    phys = {
+        "thickness": np.zeros((1, 0)),
+        "permittivity": np.array([[9.0]]),
+        "conductivity": np.array([[5.0]]),
+        "amplitude_noise_scale": np.array([1.5]),
+    }
     amp = np.exp(op([], [9.0], [5.0], [0.7]) + np.array([0.02, -0.03, 0.01, 0.0, 0.04, -0.01]))
     err = np.full(6, 0.05)
     term = AmplitudeLikelihood(op, amp, err, n_conductivity=1)
@@ -109,12 +137,18 @@ def test_gain_draws_follow_the_conditional_posterior():
 
 def test_conductivity_prior_is_normalised_log_uniform():
     p = Priors()
-    val, _ = integrate.quad(lambda s: math.exp(p.log_prob_conductivity([s])), 0.1, 1000.0,
-                            points=[1.0, 10.0, 100.0], limit=200)
+    val, _ = integrate.quad(
+        lambda s: math.exp(p.log_prob_conductivity([s])),
+        0.1,
+        1000.0,
+        points=[1.0, 10.0, 100.0],
+        limit=200,
+    )
     assert val == pytest.approx(1.0, rel=1e-8)
     assert p.log_prob_conductivity([0.05]) == -np.inf
-    d = p.sample(3000, n_interfaces=1, rng=np.random.default_rng(5), time_zero_mean=0.0,
-                 amplitudes=True)
+    d = p.sample(
+        3000, n_interfaces=1, rng=np.random.default_rng(5), time_zero_mean=0.0, amplitudes=True
+    )
     assert d["conductivity"].shape == (3000, 2)
     assert stats.kstest(d["conductivity"][:, 1], stats.loguniform(0.1, 1000).cdf).pvalue > 1e-3
     assert stats.kstest(d["amplitude_noise_scale"], stats.lognorm(1.0).cdf).pvalue > 1e-3
@@ -127,17 +161,29 @@ def test_conductivity_prior_is_normalised_log_uniform():
 
 def test_posterior_blocks_follow_the_amplitude_picks():
     rng = np.random.default_rng(2)
-    picks = simulate_picks([0.5, 0.5], [6.0, 12.0, 25.0], [8.0, 25.0, 60.0],
-                           offsets=np.linspace(0.5, 2.5, 5), interfaces=[1, 2],
-                           gains=[0.0, 0.0, 0.0], rng=rng)
+    picks = simulate_picks(
+        [0.5, 0.5],
+        [6.0, 12.0, 25.0],
+        [8.0, 25.0, 60.0],
+        offsets=np.linspace(0.5, 2.5, 5),
+        interfaces=[1, 2],
+        gains=[0.0, 0.0, 0.0],
+        rng=rng,
+    )
     post = LogPosterior(picks)
     assert post.n_conductivity == 2
     assert "log_conductivity[2]" in post.names and "log_amplitude_noise_scale" in post.names
     lo, hi = post.bounds()
     s = post.slices["log_conductivity"]
     np.testing.assert_allclose([lo[s][0], hi[s][0]], np.log([0.1, 1000.0]))
-    x = post.from_physical({"permittivity": [[6.0, 12.0, 25.0]], "thickness": [[0.5, 0.5]],
-                            "time_zero": [0.0], "conductivity": [[8.0, 25.0, 60.0]]})
+    x = post.from_physical(
+        {
+            "permittivity": [[6.0, 12.0, 25.0]],
+            "thickness": [[0.5, 0.5]],
+            "time_zero": [0.0],
+            "conductivity": [[8.0, 25.0, 60.0]],
+        }
+    )
     phys = post.to_physical(x)
     np.testing.assert_allclose(phys["conductivity"], [[8.0, 25.0]])
     assert post.residuals(x).shape == (1, 2 * 20 + 1)
@@ -157,8 +203,15 @@ def test_posterior_blocks_follow_the_amplitude_picks():
 
 def test_amplitude_input_errors():
     rng = np.random.default_rng(4)
-    picks = simulate_picks([0.5], [6.0, 12.0], [8.0, 8.0], offsets=[0.5, 1.0, 1.5],
-                           interfaces=[1], gains=[0.0, 0.0, 0.0], rng=rng)
+    picks = simulate_picks(
+        [0.5],
+        [6.0, 12.0],
+        [8.0, 8.0],
+        offsets=[0.5, 1.0, 1.5],
+        interfaces=[1],
+        gains=[0.0, 0.0, 0.0],
+        rng=rng,
+    )
     no_amp = picks.drop_vars(["amplitude", "amplitude_sigma"])
     with pytest.raises(InputError, match="no 'amplitude' column"):
         LogPosterior(no_amp, amplitudes=True)
@@ -175,6 +228,18 @@ def test_amplitude_input_errors():
     assert LogPosterior(air_only).amplitude_term is None  # air amplitudes carry no loss
     with pytest.raises(InputError, match="no ground or reflection pick has an amplitude"):
         LogPosterior(air_only, amplitudes=True)
+    # zero-offset air and ground amplitudes cannot be modelled (1/x^2) and are left out
+    zero = sw.make_picks(
+        [0.0, 0.5, 1.0],
+        [0.0, 5.0, 10.0],
+        "ground",
+        sigma=0.3,
+        frequency_mhz=FREQ,
+        amplitude=[9.0, 4.0, 1.0],
+    )
+    post = LogPosterior(zero)
+    assert post.amplitude_term.n == 2
+    np.testing.assert_array_equal(post.amplitude_pick_index, [1, 2])
 
 
 # --- statistical recovery ----------------------------------------------------------------------
@@ -184,9 +249,15 @@ def test_amplitude_input_errors():
 def three_layer():
     rng = np.random.default_rng(42)
     truth = {"h": [0.5, 0.6], "eps": [6.0, 12.0, 25.0], "sigma": [8.0, 25.0, 60.0]}
-    picks = simulate_picks(truth["h"], truth["eps"], truth["sigma"],
-                           offsets=np.linspace(0.4, 3.0, 10), interfaces=[1, 2],
-                           gains=[0.0, 0.5, 1.5], rng=rng)
+    picks = simulate_picks(
+        truth["h"],
+        truth["eps"],
+        truth["sigma"],
+        offsets=np.linspace(0.4, 3.0, 10),
+        interfaces=[1, 2],
+        gains=[0.0, 0.5, 1.5],
+        rng=rng,
+    )
     res = sw.invert(picks, seed=7, tau_factor=40.0)
     return truth, res
 
@@ -232,27 +303,60 @@ def test_summary_and_netcdf_round_trip_carry_conductivity(three_layer, tmp_path)
     assert float(prof.sel(depth=0.1, method="nearest")) == pytest.approx(med[0], rel=0.05)
     assert float(prof.sel(depth=0.8, method="nearest")) == pytest.approx(med[1], rel=0.05)
     # attenuation quantiles per layer: soilwave.wave.attenuation of the draws
-    att = sw.attenuation(res.samples["permittivity"].values, res.samples["conductivity"].values,
-                         FREQ, unit="dB/m")
-    np.testing.assert_allclose(s["layer_attenuation"].sel(quantile=0.5).values,
-                               np.quantile(att, 0.5, axis=0), rtol=1e-10)
+    att = sw.attenuation(
+        res.samples["permittivity"].values, res.samples["conductivity"].values, FREQ, unit="dB/m"
+    )
+    np.testing.assert_allclose(
+        s["layer_attenuation"].sel(quantile=0.5).values, np.quantile(att, 0.5, axis=0), rtol=1e-10
+    )
     np.testing.assert_array_equal(s["conductivity_constrained"].values, [1, 1, 0])
     path = res.to_netcdf(tmp_path / "joint.nc")
     back = sw.read_result(path)
     xr.testing.assert_allclose(back.samples["conductivity"], res.samples["conductivity"])
     np.testing.assert_array_equal(back.summary()["conductivity_constrained"].values, [1, 1, 0])
     assert back.priors == res.priors
-    np.testing.assert_array_equal(back.conductivity_constraint()["conductivity_constrained"],
-                                  [1, 1, 0])
+    np.testing.assert_array_equal(
+        back.conductivity_constraint()["conductivity_constrained"], [1, 1, 0]
+    )
+
+
+def test_penetration_depth_from_the_posterior(three_layer):
+    _, res = three_layer
+    q = res.penetration_depth(noise_level=1e-3, quantiles=[0.05, 0.5, 0.95])
+    assert q.dims == ("quantile",) and q.attrs["units"] == "m"
+    assert float(q[0]) < float(q[1]) < float(q[2])
+    per_draw = res.penetration_depth(noise_level=1e-3, quantiles=None)
+    i = 123
+    s = res.samples.isel(sample=i)
+    direct = sw.penetration_depth(
+        s["permittivity"].values,
+        s["conductivity"].values,
+        s["thickness"].values[:2],
+        frequency_mhz=FREQ,
+        noise_level=1e-3,
+        source_amplitude=float(np.exp(s["log_gain_reflection"])),
+    )
+    assert float(per_draw[i]) == pytest.approx(float(direct), rel=1e-12)
+    # a quieter record sees deeper
+    assert float(res.penetration_depth(noise_level=1e-4, quantiles=[0.5])[0]) > float(q[1])
+    with pytest.raises(InputError, match="no 'noise_level' attribute"):
+        res.penetration_depth()
 
 
 def test_lossless_layer_posterior_sits_at_the_prior_low_end():
     # conductivity 0: the amplitudes decay by spreading only; ground-wave amplitudes only,
     # so layer 2 is not reached and keeps its prior
     rng = np.random.default_rng(8)
-    picks = simulate_picks([0.6], [9.0, 16.0], [0.0, 0.0], offsets=np.linspace(0.4, 3.0, 10),
-                           interfaces=[1], gains=[0.0, 0.5, 1.5], rng=rng,
-                           with_amplitude=["air", "ground"])
+    picks = simulate_picks(
+        [0.6],
+        [9.0, 16.0],
+        [0.0, 0.0],
+        offsets=np.linspace(0.4, 3.0, 10),
+        interfaces=[1],
+        gains=[0.0, 0.5, 1.5],
+        rng=rng,
+        with_amplitude=["air", "ground"],
+    )
     res = sw.invert(picks, seed=8, tau_factor=40.0)
     c1 = res.samples["conductivity"].sel(layer=1).values
     # essentially all posterior mass within one decade of the prior's lower bound (0.1)
@@ -265,8 +369,15 @@ def test_lossless_layer_posterior_sits_at_the_prior_low_end():
 
 def test_no_amplitudes_no_conductivity_and_the_result_says_so():
     rng = np.random.default_rng(9)
-    picks = simulate_picks([0.6], [9.0, 16.0], [5.0, 5.0], offsets=np.linspace(0.5, 3.0, 8),
-                           interfaces=[1], gains=[0.0, 0.0, 0.0], rng=rng)
+    picks = simulate_picks(
+        [0.6],
+        [9.0, 16.0],
+        [5.0, 5.0],
+        offsets=np.linspace(0.5, 3.0, 8),
+        interfaces=[1],
+        gains=[0.0, 0.0, 0.0],
+        rng=rng,
+    )
     picks = picks.drop_vars(["amplitude", "amplitude_sigma"])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", sw.ConvergenceWarning)
@@ -277,3 +388,12 @@ def test_no_amplitudes_no_conductivity_and_the_result_says_so():
     assert "no usable amplitudes" in s.attrs["conductivity_note"]
     with pytest.raises(InputError, match="no conductivity"):
         res.conductivity_constraint()
+
+
+def test_table_reports_conductivity_and_prior_only_layers(three_layer):
+    _, res = three_layer
+    text = res.table()
+    assert "conductivity mS/m" in text
+    rows = text.splitlines()
+    assert rows[-2].split()[0] == "3" and rows[-2].rstrip().endswith("prior only")
+    assert "prior only" not in rows[2] and "prior only" not in rows[3]

@@ -13,8 +13,15 @@ from hypothesis import strategies as st
 from scipy import constants
 
 import soilwave as sw
-from soilwave.errors import OutputExistsError, PickTableError, SoilwaveWarning
-from soilwave.picks import CONSISTENCY_SIGMAS, DEFAULT_SIGMA_FRACTION
+from soilwave.errors import (
+    FileFormatError,
+    InputError,
+    OutputExistsError,
+    PickTableError,
+    SoilwaveError,
+    SoilwaveWarning,
+)
+from soilwave.picks import CONSISTENCY_SIGMAS, DEFAULT_SIGMA_FRACTION, UNKNOWN_TIME_ZERO_NS
 
 C = constants.c * 1e-9  # m/ns
 
@@ -146,18 +153,148 @@ def test_read_errors_name_file_row_and_column(tmp_path, body, match):
     assert "picks.csv" in str(info.value)
 
 
+def _shifted_survey(t0, *, eps=4.0, h=0.6, air=True, sigma=0.2):
+    """Air, ground and reflection times of one layer over a half-space, shifted by t0.
+
+    Straight-ray formulas written out here: air x/c, ground x sqrt(eps)/c,
+    reflection sqrt(x^2 + 4 h^2) sqrt(eps)/c (two-way), each plus t0.
+    """
+    x = np.linspace(0.5, 3.0, 6)
+    times = [x * np.sqrt(eps) / C, np.sqrt(x**2 + 4 * h * h) * np.sqrt(eps) / C]
+    phases = ["ground"] * 6 + ["reflection"] * 6
+    if air:
+        times.insert(0, x / C)
+        phases = ["air"] * 6 + phases
+    offs = np.tile(x, len(times))
+    t = np.concatenate(times) + t0
+    itf = [1 if p == "reflection" else 0 for p in phases]
+    return offs, t, phases, itf
+
+
+def test_negative_time_zero_table_is_valid(tmp_path):
+    # time zero set 3 ns late (t0 = -3 ns, as when time zero is put on the air-wave first
+    # break at 0.9 m): every ground pick precedes x/c, the nearest by more than
+    # CONSISTENCY_SIGMAS sigma, yet the table is consistent with its own air wave
+    offs, t, ph, itf = _shifted_survey(-3.0)
+    ground = np.asarray(ph) == "ground"
+    early = t[ground] < offs[ground] / C - CONSISTENCY_SIGMAS * 0.2
+    assert early.any()  # the check against x/c alone rejected this table
+    p = sw.make_picks(offs, t, ph, interface=itf, sigma=0.2)
+    assert p.sizes["pick"] == 18
+    path = sw.write_picks(p, tmp_path / "shifted.csv")
+    assert sw.read_picks(path).sizes["pick"] == 18
+    # without air picks time zero is unknown; the shift is inside UNKNOWN_TIME_ZERO_NS
+    offs, t, ph, itf = _shifted_survey(-3.0, air=False)
+    assert sw.make_picks(offs, t, ph, interface=itf, sigma=0.2).sizes["pick"] == 12
+
+
+def test_unknown_time_zero_allowance():
+    # derived: a time zero on the air-wave first break 3 m out shifts picks by 3 m / c
+    assert UNKNOWN_TIME_ZERO_NS == pytest.approx(3.0 / C)
+    assert UNKNOWN_TIME_ZERO_NS == pytest.approx(10.007, abs=1e-3)
+
+
 def test_ground_wave_faster_than_light_is_an_error(tmp_path):
-    # eps < 1: at 2 m the air wave takes 2/c = 6.671 ns (references.md); a ground pick at
-    # 5 ns with sigma 0.3 is 5.6 sigma early
-    body = "offset_m,time_ns,sigma_ns,phase\n2.0,5.0,0.3,ground\n"
+    # no air picks: at 10 m the air wave takes 10/c = 33.356 ns; a ground pick at 20 ns
+    # is 13.4 ns early, more than 3 sigma + UNKNOWN_TIME_ZERO_NS; with time zero 0 it
+    # implies eps = (20 c / 10)^2 = 0.36
+    body = "offset_m,time_ns,sigma_ns,phase\n10.0,20.0,0.3,ground\n"
     with pytest.raises(
-        PickTableError, match=r"row 1, column 'time_ns'.*permittivity of about 0\.56"
+        PickTableError,
+        match=r"row 1, column 'time_ns'.*unknown time zero.*permittivity of about 0\.36",
     ):
         sw.read_picks(_csv(tmp_path, body))
-    # within CONSISTENCY_SIGMAS of x/c it is accepted (time-zero jitter)
-    t_ok = 2.0 / C - (CONSISTENCY_SIGMAS - 0.5) * 0.3
-    p = sw.make_picks([2.0], [t_ok], "ground", sigma=0.3)
-    assert p.sizes["pick"] == 1
+    # within CONSISTENCY_SIGMAS sigma + the allowance of x/c it is accepted
+    t_ok = 10.0 / C - UNKNOWN_TIME_ZERO_NS - (CONSISTENCY_SIGMAS - 0.5) * 0.3
+    assert sw.make_picks([10.0], [t_ok], "ground", sigma=0.3).sizes["pick"] == 1
+    t_bad = 10.0 / C - UNKNOWN_TIME_ZERO_NS - (CONSISTENCY_SIGMAS + 0.5) * 0.3
+    with pytest.raises(PickTableError, match="no air picks to fix time zero"):
+        sw.make_picks([10.0], [t_bad], "ground", sigma=0.3)
+
+
+def test_ground_wave_earlier_than_the_air_wave_line():
+    # air picks at 0.5-3 m with t0 = -3 ns; a ground pick at 4 m (no air pick there) is
+    # compared with the air-wave line x/c + t0 fitted through them: at 4 m
+    # 4/c - 3 = 10.343 ns. The line's t0 is the inverse-variance weighted mean of
+    # t_air - x/c (here all sigmas 0.2 ns: the plain mean, standard error 0.2/sqrt(6)).
+    offs, t, ph, itf = _shifted_survey(-3.0)
+    line = 4.0 / C - 3.0
+    margin = CONSISTENCY_SIGMAS * np.hypot(0.2, 0.2 / np.sqrt(6))
+    ok = sw.make_picks(
+        np.r_[offs, 4.0],
+        np.r_[t, line - margin + 0.05],
+        [*ph, "ground"],
+        interface=[*itf, 0],
+        sigma=0.2,
+    )
+    assert ok.sizes["pick"] == 19
+    with pytest.raises(
+        PickTableError,
+        match=r"pick index 18.*ground pick at .* offset 4\.0 m, is earlier than the air-wave "
+        r"line x/c - 3\.000 ns \(time zero fitted to 6 air picks\)",
+    ):
+        sw.make_picks(
+            np.r_[offs, 4.0],
+            np.r_[t, line - margin - 0.05],
+            [*ph, "ground"],
+            interface=[*itf, 0],
+            sigma=0.2,
+        )
+    # a reflection is held to the same line
+    with pytest.raises(PickTableError, match=r"reflection pick at .* air-wave line"):
+        sw.make_picks(
+            np.r_[offs, 4.0],
+            np.r_[t, line - 1.0],
+            [*ph, "reflection"],
+            interface=[*itf, 1],
+            sigma=0.2,
+        )
+
+
+def test_air_wave_line_is_per_survey():
+    # survey 0 has a late time zero (+5 ns) and air picks; survey 1 has an early one
+    # (-3 ns) and no air picks: its picks fall back to x/c with the allowance, not to
+    # survey 0's air line (which they precede by about 8 ns)
+    a = _shifted_survey(5.0)
+    b = _shifted_survey(-3.0, air=False)
+    p = sw.make_picks(
+        np.r_[a[0], b[0]],
+        np.r_[a[1], b[1]],
+        [*a[2], *b[2]],
+        interface=[*a[3], *b[3]],
+        sigma=0.2,
+        survey_time=np.r_[np.zeros(a[0].size), np.ones(b[0].size)],
+    )
+    assert p.sizes["pick"] == 30
+    # as one survey the early picks meet survey 0's air picks at the same offsets
+    with pytest.raises(PickTableError, match="earlier than the air-wave pick at the same offset"):
+        sw.make_picks(
+            np.r_[a[0], b[0]],
+            np.r_[a[1], b[1]],
+            [*a[2], *b[2]],
+            interface=[*a[3], *b[3]],
+            sigma=0.2,
+        )
+
+
+def test_read_missing_file_directory_and_bad_bytes(tmp_path):
+    # every failure is a SoilwaveError naming the path, never a bare OSError or
+    # UnicodeDecodeError
+    missing = tmp_path / "nope.csv"
+    with pytest.raises(FileFormatError, match=r"nope\.csv: no such file"):
+        sw.read_picks(missing)
+    with pytest.raises(FileFormatError, match=r"is a directory; expected a CSV pick table"):
+        sw.read_picks(tmp_path)
+    bad = tmp_path / "latin1.csv"
+    bad.write_bytes(b"offset_m,time_ns,phase\n1.0,10.0,gr\xfcnd\n")
+    with pytest.raises(PickTableError, match=r"latin1\.csv: not a UTF-8 text file"):
+        sw.read_picks(bad)
+    with pytest.raises(FileFormatError, match=r"cannot be read \(embedded null byte\)"):
+        sw.read_picks(str(tmp_path / "a\x00b.csv"))
+    with pytest.raises(InputError, match=r"path None is not a file path"):
+        sw.read_picks(None)
+    for exc in (FileFormatError, PickTableError, InputError):
+        assert issubclass(exc, SoilwaveError) and not issubclass(exc, OSError)
 
 
 def test_ground_earlier_than_air_pick_at_same_offset(tmp_path):
@@ -304,8 +441,9 @@ def test_drop_and_edit_errors():
         sw.drop_picks(p, 1.5)
     with pytest.raises(PickTableError, match="edits one pick"):
         sw.edit_pick(p, [1, 2], time=3.0)
-    # moving a ground pick to 2 m at 5.05 ns would need eps < 1
-    with pytest.raises(PickTableError, match="earlier than the air wave"):
+    # moving a ground pick to 2 m at 5.05 ns puts it 1.6 ns before the air-wave line through
+    # the air picks (2/c + 0.05 = 6.72 ns): eps < 1
+    with pytest.raises(PickTableError, match="earlier than the air-wave line"):
         sw.edit_pick(p, 2, offset=2.0)
     with pytest.raises(PickTableError, match="not a number"):
         sw.edit_pick(p, 2, time="soon")
