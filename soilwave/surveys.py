@@ -1,7 +1,10 @@
 """Survey sets: repeat surveys of one spot or line, each tagged with its acquisition time.
 
-A survey set is a folder of pick tables (CSV, see :mod:`soilwave.picks`) plus a
-small *manifest* that lists them with their acquisition timestamps. Loaded, it
+A survey set is a folder of pick tables (CSV, see :mod:`soilwave.picks`) or
+recorded multi-offset gathers (``.nc``, ``.sgy``/``.segy``, see
+:mod:`soilwave.gather_io`; each is picked with :func:`soilwave.auto_pick`, after
+the processing of :func:`load_survey_file`) plus a small *manifest* that lists
+them with their acquisition timestamps. Loaded, it
 is one :class:`xarray.Dataset` with a ``time`` dimension (one entry per survey,
 elapsed hours from a stated reference time) and a ``pick`` dimension (the
 longest pick table; shorter ones are padded):
@@ -96,12 +99,17 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+from soilwave.autopick import auto_pick
 from soilwave.errors import FileFormatError, InputError, location
+from soilwave.gather_io import read_gather
 from soilwave.picks import read_picks, validate_picks
+from soilwave.processing import bandpass, dewow
 from soilwave.provenance import append_history
 
 __all__ = [
+    "GATHER_SUFFIXES",
     "MANIFEST_NAMES",
+    "load_survey_file",
     "read_survey_set",
     "survey_picks",
     "survey_set_from_picks",
@@ -397,6 +405,45 @@ def _reference(ref, stamps, pre):
     return min(candidates), "earliest survey not flagged pre_wetting (no reference_time given)"
 
 
+GATHER_SUFFIXES = (".nc", ".sgy", ".segy")
+
+
+def load_survey_file(path, *, frequency_mhz=None):
+    """One survey's pick table: read a CSV pick table, or pick a recorded gather.
+
+    A gather (``.nc``, ``.sgy``, ``.segy``) is dewowed and band-passed from a
+    quarter to 2.5 times its antenna frequency, then picked with
+    :func:`soilwave.auto_pick`; the steps are in the table's ``history``.
+
+    Parameters
+    ----------
+    path : str or path-like
+        Pick table (``.csv``) or gather file.
+    frequency_mhz : float, optional
+        Antenna centre frequency, MHz, for pick tables (and SEG-Y files) without one.
+
+    Returns
+    -------
+    xarray.Dataset
+        Pick table.
+
+    Examples
+    --------
+    >>> import soilwave as sw, tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "s.csv"
+    >>> _ = sw.write_picks(sw.make_picks([1.0], [10.0], "ground", sigma=0.3), p)
+    >>> load_survey_file(p)["time"].values.tolist()
+    [10.0]
+    """
+    path = Path(path)
+    if path.suffix.lower() not in GATHER_SUFFIXES:
+        return read_picks(path, frequency_mhz=frequency_mhz)
+    kw = {"frequency_mhz": frequency_mhz} if path.suffix.lower() != ".nc" else {}
+    gather = read_gather(path, **kw)
+    f = float(gather.attrs["frequency_mhz"])
+    return auto_pick(bandpass(dewow(gather), low_mhz=0.25 * f, high_mhz=2.5 * f))
+
+
 def read_survey_set(path, *, reference_time=None, frequency_mhz=None) -> xr.Dataset:
     """Read a survey set: a folder (or manifest file) listing pick tables with timestamps.
 
@@ -457,7 +504,7 @@ def read_survey_set(path, *, reference_time=None, frequency_mhz=None) -> xr.Data
         if not fpath.is_file():
             msg = f"{where('file')}: pick file {str(rec['file'])!r} not found in {folder}"
             raise FileFormatError(msg)
-        tables.append(read_picks(fpath, frequency_mhz=f_mhz))
+        tables.append(load_survey_file(fpath, frequency_mhz=f_mhz))
         stamps.append(_parse_timestamp(rec["timestamp"], where("timestamp")))
         wheres.append(where("timestamp"))
         pre.append(_parse_bool(rec.get("pre_wetting"), where("pre_wetting")))

@@ -232,3 +232,37 @@ def test_survey_set_to_netcdf(tmp_path, folder):
     np.testing.assert_array_equal(back["pre_wetting"].values.astype(bool), ss["pre_wetting"].values)
     assert back["phase"].values[1].tolist()[:8] == ss["phase"].values[1].tolist()
     back.close()
+
+
+def test_survey_set_of_recorded_gathers_is_auto_picked(tmp_path):
+    # Gathers listed in a manifest are picked on loading (the bundled, invented demo
+    # gathers; truth from soilwave.scenario, a Green-Ampt front).
+    import shutil
+    from pathlib import Path
+
+    from soilwave.scenario import DemoTruth
+
+    data = Path(__file__).resolve().parents[1] / "data_demo"
+    for name in ("cmp_00h.nc", "cmp_08h.nc"):
+        shutil.copy(data / name, tmp_path / name)
+    (tmp_path / "survey_set.toml").write_text(
+        '[survey_set]\nreference_time = "2026-05-12T08:00:00"\n\n'
+        '[[surveys]]\nfile = "cmp_00h.nc"\ntimestamp = "2026-05-12T07:30:00"\n'
+        "pre_wetting = true\n\n"
+        '[[surveys]]\nfile = "cmp_08h.nc"\ntimestamp = "2026-05-12T16:00:00"\n'
+    )
+    ss = sw.read_survey_set(tmp_path)
+    assert ss["time"].values.tolist() == [-0.5, 8.0]
+    wet = sw.survey_picks(ss, 1)
+    refl = wet["phase"].values == "reflection"
+    assert refl.sum() >= 3
+    # the front reflection's zero-offset time is near the truth: 2 L sqrt(eps_wet) / c
+    truth = DemoTruth()
+    t0 = (
+        2
+        * truth.front_depths()[3]
+        * np.sqrt(truth.earth_at(8.0).permittivity[0])
+        / sw.SPEED_OF_LIGHT
+    )
+    first = wet.isel(pick=np.flatnonzero(refl & (wet["interface"].values == 1)))
+    assert float(first["time"].min()) == pytest.approx(t0, abs=1.0)
